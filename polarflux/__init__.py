@@ -1,0 +1,28 @@
+"""polarflux: polar magnetic fields from synoptic maps, as a precursor of the next solar cycle.
+
+The public API is what this module exports; everything else may change.
+"""
+
+from ._version import __version__
+from .errors import MapFormatError, OutputExistsError, PolarfluxError, SettingsError
+from .maps import SynopticMap, read_map
+from .measure import CapMeasure, CapPair, axial_dipole, fill_polar_gaps, measure_caps
+from .record import measure_archive, read_record, write_record
+
+__all__ = [
+    "__version__",
+    "PolarfluxError",
+    "MapFormatError",
+    "SettingsError",
+    "OutputExistsError",
+    "SynopticMap",
+    "read_map",
+    "CapMeasure",
+    "CapPair",
+    "measure_caps",
+    "axial_dipole",
+    "fill_polar_gaps",
+    "measure_archive",
+    "read_record",
+    "write_record",
+]

@@ -1,0 +1,698 @@
+"""Reading Carrington-rotation synoptic maps.
+
+A synoptic map is a full-surface picture of the photospheric field in the
+Carrington frame: longitude along the first FITS axis, latitude along the
+second. Archives disagree on how they write the latitude axis, so the reader
+decides the grid from the axis span (``NAXIS2 * CDELT2``) rather than from one
+keyword:
+
+* cylindrical equal-area (``CRLN-CEA`` / ``CRLT-CEA``) with the latitude step in
+  sine latitude: span 2 (``CUNIT2`` "Sine Latitude", or missing);
+* cylindrical equal-area with the latitude axis in degrees and ``PV2_1`` = lambda,
+  as the FITS WCS standard writes it (Thompson 2006, A&A 449, 791, section 5.5):
+  span 360 / (pi lambda);
+* equal-angle (``CRLN-CAR`` / ``CRLT-CAR`` or plain ``Long`` / ``Lat``): span 180.
+
+Anything else is refused with :class:`~polarflux.errors.MapFormatError`.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+import os
+import re
+import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from astropy import units as u
+from astropy.time import Time
+
+from .errors import MapFormatError
+
+__all__ = ["SynopticMap", "read_map", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR"]
+
+GRIDS = ("sine-latitude", "equal-angle")
+
+#: Largest factor 1/cos(latitude) applied when converting line-of-sight field to
+#: radial (``field="los"``). 10 corresponds to 84.3 degrees latitude; poleward of
+#: that the factor is held at 10 so that noise in the last rows is not blown up.
+LOS_MAX_FACTOR = 10.0
+
+_ROTATION_KEYS = ("CAR_ROT", "CARROT")
+_INSTRUMENT_KEYS = ("INSTRUME", "TELESCOP", "ORIGIN")
+@contextlib.contextmanager
+def quiet_time_warnings():
+    """Silence ERFA's "dubious year" warning for times beyond the leap-second table.
+
+    Map times after the last announced leap second (the demo scenario lies in a
+    future epoch) would otherwise warn on every conversion.
+    """
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=".*dubious year.*")
+        yield
+
+
+_DRMS_TIME = re.compile(
+    r"^\s*(\d{4})[.\-](\d{2})[.\-](\d{2})[_T ](\d{2}):(\d{2})(?::(\d{2}(?:\.\d*)?))?"
+    r"\s*(?:_?(TAI|UTC|UT|Z))?\s*$",
+    re.IGNORECASE,
+)
+
+
+@dataclass(eq=False)
+class SynopticMap:
+    """One Carrington-rotation synoptic map of the radial field.
+
+    Attributes
+    ----------
+    br : ndarray, shape (nlat, nlon)
+        Radial field in Gauss, float64, NaN where there is no data. Row 0 is the
+        southernmost row, column 0 the smallest longitude.
+    lat_edges, lon_edges : ndarray
+        Cell edges in degrees, ascending; ``lat_edges`` runs from -90 to +90.
+    lat, lon : ndarray
+        Pixel-centre latitude and longitude in degrees, as the file's header
+        places them.
+    carrington_rotation : int or None
+    time : astropy.time.Time or None
+        Time the map stands for (the header's observation time, else the middle
+        of its Carrington rotation).
+    instrument, grid, source : str
+        ``grid`` is "sine-latitude" (equal-area rows) or "equal-angle".
+    header : dict
+        The header keywords the map was read from (upper-case keys).
+    """
+
+    br: np.ndarray
+    lat_edges: np.ndarray
+    lon_edges: np.ndarray
+    carrington_rotation: int | None = None
+    time: Time | None = None
+    instrument: str = ""
+    grid: str = "sine-latitude"
+    source: str = ""
+    lat: np.ndarray | None = None
+    lon: np.ndarray | None = None
+    header: dict = field(default_factory=dict, repr=False)
+
+    def __post_init__(self) -> None:
+        self.br = np.asarray(self.br, dtype=np.float64)
+        self.lat_edges = np.asarray(self.lat_edges, dtype=np.float64)
+        self.lon_edges = np.asarray(self.lon_edges, dtype=np.float64)
+        name = self.source or "map"
+        if self.br.ndim != 2:
+            raise MapFormatError(f"{name}: br must be 2-D (lat, lon), got shape {self.br.shape}")
+        nlat, nlon = self.br.shape
+        if self.lat_edges.shape != (nlat + 1,) or self.lon_edges.shape != (nlon + 1,):
+            raise MapFormatError(
+                f"{name}: edges do not match data shape {self.br.shape}: "
+                f"{self.lat_edges.size} latitude and {self.lon_edges.size} longitude edges"
+            )
+        if np.any(np.diff(self.lat_edges) <= 0) or np.any(np.diff(self.lon_edges) <= 0):
+            raise MapFormatError(f"{name}: cell edges must be strictly ascending")
+        if self.grid not in GRIDS:
+            raise MapFormatError(f"{name}: unknown grid {self.grid!r}; expected one of {GRIDS}")
+        if self.lat is None:
+            self.lat = _centres_from_edges(self.lat_edges, self.grid)
+        if self.lon is None:
+            self.lon = 0.5 * (self.lon_edges[:-1] + self.lon_edges[1:])
+        self.lat = np.asarray(self.lat, dtype=np.float64)
+        self.lon = np.asarray(self.lon, dtype=np.float64)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return self.br.shape
+
+    @property
+    def sin_lat_edges(self) -> np.ndarray:
+        """Sine of the latitude edges, exactly -1 and +1 at the poles."""
+        s = np.sin(np.deg2rad(self.lat_edges))
+        s[0], s[-1] = -1.0, 1.0
+        return s
+
+    @classmethod
+    def from_array(
+        cls,
+        br: Any,
+        grid: str = "sine-latitude",
+        carrington_rotation: int | None = None,
+        time: Any = None,
+        instrument: str = "",
+        source: str = "",
+        lon_start: float = 0.0,
+    ) -> SynopticMap:
+        """Wrap a full-surface array (row 0 southernmost) as a synoptic map.
+
+        Parameters
+        ----------
+        br : array-like, shape (nlat, nlon)
+            Radial field in Gauss (or a Quantity convertible to Gauss).
+        grid : {"sine-latitude", "equal-angle"}
+            "sine-latitude": rows equally spaced in sin(latitude) from -1 to 1;
+            "equal-angle": rows equally spaced in latitude from -90 to 90 degrees.
+        carrington_rotation, time, instrument, source
+            Metadata; ``time`` is anything :class:`astropy.time.Time` accepts.
+        lon_start : float
+            Longitude of the first column's western edge, degrees.
+        """
+        if isinstance(br, u.Quantity):
+            br = br.to_value(u.G)
+        br = np.array(br, dtype=np.float64)
+        if br.ndim != 2:
+            raise MapFormatError(f"{source or 'array'}: expected a 2-D array, got shape {br.shape}")
+        nlat, nlon = br.shape
+        if grid == "sine-latitude":
+            s = np.linspace(-1.0, 1.0, nlat + 1)
+            lat_edges = np.rad2deg(np.arcsin(s))
+        elif grid == "equal-angle":
+            lat_edges = np.linspace(-90.0, 90.0, nlat + 1)
+        else:
+            raise MapFormatError(f"{source or 'array'}: unknown grid {grid!r}; expected one of {GRIDS}")
+        lon_edges = lon_start + np.linspace(0.0, 360.0, nlon + 1)
+        if time is not None and not isinstance(time, Time):
+            time = Time(time)
+        return cls(br, lat_edges, lon_edges, carrington_rotation, time, instrument, grid, source)
+
+
+def _centres_from_edges(lat_edges: np.ndarray, grid: str) -> np.ndarray:
+    if grid == "sine-latitude":
+        s = np.sin(np.deg2rad(lat_edges))
+        return np.rad2deg(np.arcsin(0.5 * (s[:-1] + s[1:])))
+    return 0.5 * (lat_edges[:-1] + lat_edges[1:])
+
+
+# --------------------------------------------------------------------------- reading
+
+
+def read_map(
+    path: Any,
+    field: str = "radial",
+    plane: int | None = None,
+    los_max_factor: float = LOS_MAX_FACTOR,
+) -> SynopticMap:
+    """Read one synoptic map.
+
+    Parameters
+    ----------
+    path : str, os.PathLike or sunpy.map.GenericMap
+        A FITS file (plain or tile-compressed; the first image HDU holding 2-D
+        data is used), or a sunpy map whose ``meta`` follows the same header
+        conventions.
+    field : {"radial", "los"}
+        "radial": the map holds the radial field. "los": it holds line-of-sight
+        field, converted to radial by dividing by cos(latitude) at the pixel
+        centre (the radial-field assumption for maps built from central-meridian
+        data). The factor is capped at ``los_max_factor``.
+    plane : int, optional
+        For a 3-D cube, the index of the plane (along the slowest FITS axis) to
+        read. A cube is refused without it.
+    los_max_factor : float
+        Cap of the 1/cos(latitude) factor for ``field="los"``.
+
+    Returns
+    -------
+    SynopticMap
+
+    Raises
+    ------
+    MapFormatError
+        Naming the file, when it is not FITS, empty, truncated, has no 2-D image,
+        an unknown projection, a latitude axis not spanning the sphere, a
+        longitude axis not spanning 360 degrees, only missing values, or an
+        unknown unit.
+    """
+    if field not in ("radial", "los"):
+        raise MapFormatError(f"{path}: unknown field {field!r}; expected 'radial' or 'los'")
+    if hasattr(path, "meta") and hasattr(path, "data"):
+        header = {str(k).upper(): v for k, v in dict(path.meta).items()}
+        source = str(header.get("FILENAME", "") or "sunpy map")
+        data = np.asarray(path.data)
+    else:
+        source = os.fspath(path)
+        header, data = _read_fits_image(source)
+    data = _select_plane(data, plane, source)
+    return _build_map(data, header, source, field, los_max_factor)
+
+
+def _read_fits_image(source: str) -> tuple[dict, np.ndarray]:
+    """Return (header, data copy) of the first image HDU with 2-D or more data."""
+    from astropy.io import fits
+
+    if os.path.isdir(source):
+        raise MapFormatError(f"{source}: is a directory, not a FITS file")
+    try:
+        size = os.path.getsize(source)
+    except OSError as exc:
+        raise MapFormatError(f"{source}: cannot open ({exc.strerror or exc})") from None
+    if size == 0:
+        raise MapFormatError(f"{source}: empty file")
+    try:
+        with warnings.catch_warnings():
+            # Truncation and header damage arrive as warnings; treat them as errors.
+            warnings.simplefilter("error")
+            with fits.open(source, memmap=False, lazy_load_hdus=True) as hdul:
+                for hdu in hdul:
+                    if not getattr(hdu, "is_image", False):
+                        continue
+                    naxis = int(hdu.header.get("NAXIS", 0))
+                    if naxis < 2:
+                        continue
+                    data = hdu.data
+                    if data is None:
+                        continue
+                    # A copy: never keep a view into the file's buffer alive.
+                    return dict(hdu.header.items()), np.array(data, copy=True)
+    except MapFormatError:
+        raise
+    except PermissionError:
+        raise MapFormatError(f"{source}: cannot open (permission denied)") from None
+    except Exception as exc:  # astropy raises OSError, ValueError, warnings, ...
+        raise MapFormatError(f"{source}: not a readable FITS file ({_first_line(exc)})") from None
+    raise MapFormatError(f"{source}: no 2-D image in any HDU")
+
+
+def _first_line(exc: BaseException) -> str:
+    text = str(exc).strip().splitlines()
+    return text[0] if text else type(exc).__name__
+
+
+def _select_plane(data: np.ndarray, plane: int | None, source: str) -> np.ndarray:
+    if data.ndim == 2:
+        if plane not in (None, 0):
+            raise MapFormatError(f"{source}: plane={plane} asked for, but the image is 2-D")
+        return data
+    if data.ndim < 2:
+        raise MapFormatError(f"{source}: no 2-D image (data has {data.ndim} dimension(s))")
+    extra = data.shape[:-2]
+    nplanes = int(np.prod(extra))
+    if plane is None:
+        if nplanes == 1:
+            return data.reshape(data.shape[-2:])
+        raise MapFormatError(
+            f"{source}: {data.ndim}-D cube with {nplanes} planes; name one with plane=N"
+        )
+    if not 0 <= plane < nplanes:
+        raise MapFormatError(f"{source}: plane={plane} outside the cube's {nplanes} planes")
+    return data.reshape((nplanes,) + data.shape[-2:])[plane]
+
+
+def _build_map(
+    data: np.ndarray, header: Mapping, source: str, field: str, los_max_factor: float
+) -> SynopticMap:
+    nlat, nlon = data.shape
+    lat_axis = _latitude_axis(header, nlat, source)
+    lon_axis = _longitude_axis(header, nlon, source)
+    if lat_axis.projection != lon_axis.projection:
+        raise MapFormatError(
+            f"{source}: longitude and latitude axes disagree on the projection "
+            f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
+        )
+    factor = _gauss_per_unit(header, source)
+
+    br = np.asarray(data, dtype=np.float64)
+    if br is data:
+        br = br.copy()
+    missing = header.get("MISSING")
+    if isinstance(missing, (int, float)) and not isinstance(missing, bool) and math.isfinite(missing):
+        br[br == missing] = np.nan
+    total = br.sum()
+    if not math.isfinite(total):  # some NaN or inf: make every non-finite value NaN
+        bad = ~np.isfinite(br)
+        if bad.all():
+            raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
+        br[bad] = np.nan
+    if factor != 1.0:
+        br *= factor
+
+    if lat_axis.flip:
+        br = br[::-1]
+    if lon_axis.drop_last:
+        br = br[:, :-1]
+    if lon_axis.flip:
+        br = br[:, ::-1]
+    if lon_axis.roll:
+        br = np.roll(br, -lon_axis.roll, axis=1)
+    br = np.ascontiguousarray(br)
+
+    if field == "los":
+        cosine = np.cos(np.deg2rad(lat_axis.centres))
+        br /= np.maximum(cosine, 1.0 / los_max_factor)[:, None]
+
+    with quiet_time_warnings():
+        time = _map_time(header, source)
+        rotation = _rotation_number(header, lon_axis.rotation, time, source)
+        if time is None and rotation is not None:
+            from sunpy.coordinates.sun import carrington_rotation_time
+
+            time = carrington_rotation_time(rotation + 0.5).utc
+    instrument = ""
+    for key in _INSTRUMENT_KEYS:
+        if str(header.get(key, "")).strip():
+            instrument = str(header[key]).strip()
+            break
+    return SynopticMap(
+        br=br,
+        lat_edges=lat_axis.edges,
+        lon_edges=lon_axis.edges,
+        carrington_rotation=rotation,
+        time=time,
+        instrument=instrument,
+        grid=lat_axis.grid,
+        source=source,
+        lat=lat_axis.centres,
+        lon=lon_axis.centres,
+        header=dict(header),
+    )
+
+
+# --------------------------------------------------------------------------- axes
+
+
+@dataclass
+class _LatAxis:
+    edges: np.ndarray
+    centres: np.ndarray
+    grid: str
+    flip: bool
+    projection: str
+
+
+@dataclass
+class _LonAxis:
+    edges: np.ndarray
+    centres: np.ndarray
+    flip: bool
+    roll: int
+    drop_last: bool
+    rotation: int | None
+    projection: str
+
+
+def _projection(ctype: str, kind: str, source: str) -> str:
+    """Return "CEA", "CAR" or "" (a plain linear axis) for a CTYPE value."""
+    text = ctype.strip().upper()
+    lon_names = ("CRLN", "LONG", "LON", "CARRINGTON LONGITUDE")
+    lat_names = ("CRLT", "LAT", "CARRINGTON LATITUDE")
+    names = lon_names if kind == "longitude" else lat_names
+    if text in names:
+        return ""
+    base, _, proj = text.partition("-")
+    proj = proj.strip("-")
+    if base in ("CRLN", "CRLT") and base in names and proj in ("CEA", "CAR"):
+        return proj
+    raise MapFormatError(
+        f"{source}: unknown {kind} axis type CTYPE{1 if kind == 'longitude' else 2}={ctype!r}; "
+        "expected CRLN-CEA/CRLT-CEA, CRLN-CAR/CRLT-CAR or Long/Lat"
+    )
+
+
+def _number(header: Mapping, key: str, source: str, default: float | None = None) -> float:
+    value = header.get(key, default)
+    if value is None:
+        raise MapFormatError(f"{source}: header keyword {key} is missing")
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        raise MapFormatError(f"{source}: header keyword {key}={value!r} is not a number") from None
+    if not math.isfinite(number):
+        raise MapFormatError(f"{source}: header keyword {key}={value!r} is not finite")
+    return number
+
+
+def _step(header: Mapping, axis: int, source: str) -> float:
+    if f"CDELT{axis}" in header:
+        step = _number(header, f"CDELT{axis}", source)
+    elif f"CD{axis}_{axis}" in header:
+        step = _number(header, f"CD{axis}_{axis}", source)
+    else:
+        raise MapFormatError(f"{source}: header keyword CDELT{axis} is missing")
+    other = 3 - axis
+    for key in (f"PC{axis}_{other}", f"CD{axis}_{other}"):
+        if key in header and _number(header, key, source) != 0.0:
+            raise MapFormatError(f"{source}: rotated pixel axes ({key}) are not a synoptic map grid")
+    if f"PC{axis}_{axis}" in header:
+        step *= _number(header, f"PC{axis}_{axis}", source)
+    if step == 0.0:
+        raise MapFormatError(f"{source}: CDELT{axis} is zero")
+    return step
+
+
+def _latitude_axis(header: Mapping, nlat: int, source: str) -> _LatAxis:
+    projection = _projection(str(header.get("CTYPE2", "")), "latitude", source)
+    step = _step(header, 2, source)
+    crpix = _number(header, "CRPIX2", source)
+    crval = _number(header, "CRVAL2", source, 0.0)
+    span = nlat * abs(step)
+    tolerance = 0.5 * abs(step)  # header values are often rounded: allow half a pixel
+    pixel = np.arange(1, nlat + 1, dtype=np.float64)
+    edge_pixel = np.arange(0.5, nlat + 1.0, dtype=np.float64)
+
+    if projection == "CEA":
+        lam = _number(header, "PV2_1", source, 1.0)
+        if lam <= 0:
+            raise MapFormatError(f"{source}: PV2_1={lam} must be positive for CEA")
+        if abs(span - 2.0) <= tolerance:
+            # Step given in sine latitude (CUNIT2 "Sine Latitude", or absent).
+            to_sine = 1.0
+        elif abs(span - 360.0 / (math.pi * lam)) <= tolerance:
+            if crval != 0.0:
+                raise MapFormatError(f"{source}: oblique CEA (CRVAL2={crval}) is not a synoptic map")
+            to_sine = lam * math.pi / 180.0
+        else:
+            raise MapFormatError(
+                f"{source}: latitude axis does not span the sphere: NAXIS2 x CDELT2 = {span:.6g}, "
+                f"expected 2 (sine latitude) or {360.0 / (math.pi * lam):.6g} (degrees, PV2_1={lam:g})"
+            )
+        sine_c = (crval + step * (pixel - crpix)) * to_sine
+        sine_e = (crval + step * (edge_pixel - crpix)) * to_sine
+        tol_sine = tolerance * to_sine
+        _check_ends(sine_e, -1.0, 1.0, tol_sine, "sin(latitude)", source)
+        sine_e = np.clip(sine_e, -1.0, 1.0)
+        centres = np.rad2deg(np.arcsin(np.clip(sine_c, -1.0, 1.0)))
+        edges = np.rad2deg(np.arcsin(sine_e))
+        grid = "sine-latitude"
+    else:
+        if abs(span - 180.0) > tolerance:
+            raise MapFormatError(
+                f"{source}: latitude axis does not span the sphere: NAXIS2 x CDELT2 = {span:.6g} "
+                "degrees, expected 180"
+            )
+        if projection == "CAR" and crval != 0.0:
+            raise MapFormatError(f"{source}: oblique CAR (CRVAL2={crval}) is not a synoptic map")
+        centres = crval + step * (pixel - crpix)
+        edges = crval + step * (edge_pixel - crpix)
+        _check_ends(edges, -90.0, 90.0, tolerance, "degrees", source)
+        edges = np.clip(edges, -90.0, 90.0)
+        grid = "equal-angle"
+
+    flip = step < 0
+    if flip:
+        centres, edges = centres[::-1], edges[::-1]
+    edges = edges.copy()
+    edges[0], edges[-1] = -90.0, 90.0
+    return _LatAxis(edges, np.ascontiguousarray(centres), grid, flip, projection)
+
+
+def _check_ends(edges: np.ndarray, low: float, high: float, tol: float, unit: str, source: str) -> None:
+    first, last = float(min(edges[0], edges[-1])), float(max(edges[0], edges[-1]))
+    if abs(first - low) > tol or abs(last - high) > tol:
+        raise MapFormatError(
+            f"{source}: latitude axis does not span the sphere: it runs from {first:.6g} to "
+            f"{last:.6g} {unit}, expected {low:g} to {high:g}"
+        )
+
+
+def _longitude_axis(header: Mapping, nlon: int, source: str) -> _LonAxis:
+    projection = _projection(str(header.get("CTYPE1", "")), "longitude", source)
+    step = _step(header, 1, source)
+    crpix = _number(header, "CRPIX1", source)
+    crval = _number(header, "CRVAL1", source, 0.0)
+    width = abs(step)
+    span = nlon * width
+    drop_last = False
+    if abs(span - 360.0) > 0.5 * width:
+        if nlon > 1 and abs(span - width - 360.0) <= 0.5 * width:
+            drop_last = True  # first and last columns are the same meridian
+            nlon -= 1
+        else:
+            raise MapFormatError(
+                f"{source}: longitude axis does not span 360 degrees: NAXIS1 x CDELT1 = {span:.6g}"
+            )
+    values = crval + step * (np.arange(1, nlon + 1, dtype=np.float64) - crpix)
+    rotation = None
+    if abs(crval) > 720.0:
+        # Cumulative Carrington time: value = 360 x rotation - longitude.
+        middle = crval + step * ((nlon + 1) / 2.0 - crpix)
+        rotation = int(math.ceil(middle / 360.0))
+        longitudes = -values
+        ascending = step < 0
+    else:
+        longitudes = values
+        ascending = step > 0
+    flip = not ascending
+    if flip:
+        longitudes = longitudes[::-1]
+    reduced = np.mod(longitudes, 360.0)
+    roll = int(np.argmin(reduced))
+    start = reduced[roll]
+    centres = start + width * np.arange(nlon)
+    edges = start - 0.5 * width + width * np.arange(nlon + 1)
+    return _LonAxis(edges, centres, flip, roll, drop_last, rotation, projection)
+
+
+# --------------------------------------------------------------------------- metadata
+
+
+def _gauss_per_unit(header: Mapping, source: str) -> float:
+    bunit = header.get("BUNIT")
+    if bunit is None or not str(bunit).strip():
+        warnings.warn(f"{source}: no BUNIT keyword; taking the data as Gauss", stacklevel=4)
+        return 1.0
+    text = str(bunit).strip()
+    try:
+        unit = u.Unit(text, parse_strict="raise")
+        return float(unit.to(u.G))
+    except (ValueError, u.UnitsError, TypeError):
+        raise MapFormatError(
+            f"{source}: unknown unit BUNIT={text!r}; expected a magnetic flux density "
+            "(G, Gauss, Mx/cm^2, T, nT)"
+        ) from None
+
+
+def parse_header_time(value: Any) -> Time | None:
+    """Parse a header time: ISO 8601, or the ``YYYY.MM.DD_hh:mm:ss_TAI`` form."""
+    if value is None:
+        return None
+    text = str(value).strip()
+    if not text:
+        return None
+    match = _DRMS_TIME.match(text)
+    if match:
+        year, month, day, hour, minute, second, scale = match.groups()
+        second = second or "00"
+        iso = f"{year}-{month}-{day}T{hour}:{minute}:{second}"
+        scale = "tai" if (scale or "").upper() == "TAI" else "utc"
+        return Time(iso, format="isot", scale=scale).utc
+    try:
+        return Time(text.rstrip("Z"), scale="utc")
+    except ValueError:
+        return None
+
+
+def _map_time(header: Mapping, source: str) -> Time | None:
+    date_obs = str(header.get("DATE-OBS", "") or "").strip()
+    if date_obs:
+        time_obs = str(header.get("TIME-OBS", "") or "").strip()
+        if "T" not in date_obs.upper() and time_obs:
+            date_obs = f"{date_obs}T{time_obs}"
+        parsed = parse_header_time(date_obs)
+        if parsed is not None:
+            return parsed
+    for key in ("T_OBS", "DATE"):
+        parsed = parse_header_time(header.get(key))
+        if parsed is not None:
+            return parsed
+    return None
+
+
+def _rotation_number(header: Mapping, from_axis: int | None, time: Time | None, source: str) -> int | None:
+    for key in _ROTATION_KEYS:
+        value = header.get(key)
+        if value is None or isinstance(value, bool):
+            continue
+        try:
+            number = float(value)
+        except (TypeError, ValueError):
+            continue
+        if math.isfinite(number) and number > 0:
+            return int(round(number))
+    if from_axis is not None:
+        return from_axis
+    if time is not None:
+        from sunpy.coordinates.sun import carrington_rotation_number
+
+        return int(math.floor(float(carrington_rotation_number(time))))
+    return None
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def map_header(m: SynopticMap) -> dict:
+    """FITS WCS header keywords (Thompson 2006) describing ``m``'s grid and metadata.
+
+    Sine-latitude grids are written as ``CRLN-CEA`` / ``CRLT-CEA`` with the
+    latitude axis in degrees and ``PV2_1 = 1``; equal-angle grids as
+    ``CRLN-CAR`` / ``CRLT-CAR``. Both need a regular grid over the whole sphere.
+    """
+    nlat, nlon = m.br.shape
+    dlon = np.diff(m.lon_edges)
+    if not np.allclose(dlon, 360.0 / nlon, rtol=0, atol=1e-9 * 360):
+        raise MapFormatError(f"{m.source or 'map'}: longitude grid must be regular over 360 degrees to write")
+    header = {
+        "WCSNAME": "Carrington heliographic",
+        "CTYPE1": "CRLN-CEA" if m.grid == "sine-latitude" else "CRLN-CAR",
+        "CTYPE2": "CRLT-CEA" if m.grid == "sine-latitude" else "CRLT-CAR",
+        "CUNIT1": "deg",
+        "CUNIT2": "deg",
+        "CRPIX1": (nlon + 1) / 2.0,
+        "CRVAL1": float(m.lon_edges[0] + 180.0),
+        "CDELT1": 360.0 / nlon,
+        "CRPIX2": (nlat + 1) / 2.0,
+        "CRVAL2": 0.0,
+        "CDELT2": (360.0 / np.pi) / nlat if m.grid == "sine-latitude" else 180.0 / nlat,
+        "BUNIT": "G",
+    }
+    if m.grid == "sine-latitude":
+        header["PV2_1"] = 1.0
+    if m.carrington_rotation is not None:
+        header["CAR_ROT"] = int(m.carrington_rotation)
+    if m.time is not None:
+        with quiet_time_warnings():
+            header["DATE-OBS"] = m.time.utc.isot
+    if m.instrument:
+        header["INSTRUME"] = m.instrument
+    return header
+
+
+def write_map(
+    m: SynopticMap,
+    path: str | os.PathLike,
+    force: bool = False,
+    dtype: Any = np.float32,
+    extra: Mapping | None = None,
+    compress: bool = False,
+) -> str:
+    """Write ``m`` as a FITS file that :func:`read_map` and ``sunpy.map.Map`` read back.
+
+    Parameters
+    ----------
+    m : SynopticMap
+    path : path
+        Output file; written atomically, never overwritten unless ``force``.
+    dtype : numpy dtype
+        Data type on disk (float32 by default, as archives store maps).
+    extra : mapping, optional
+        More header keywords (for example ``TELESCOP``, ``OBSERVER``).
+    compress : bool
+        Write a tile-compressed image in the first extension (empty primary HDU).
+    """
+    from astropy.io import fits
+
+    from ._io import atomic_path
+
+    header = fits.Header()
+    for key, value in {**map_header(m), **dict(extra or {})}.items():
+        header[key] = value
+    data = np.asarray(m.br, dtype=dtype)
+    with atomic_path(path, force=force) as tmp:
+        if compress:
+            hdul = fits.HDUList([fits.PrimaryHDU(), fits.CompImageHDU(data=data, header=header)])
+        else:
+            hdul = fits.HDUList([fits.PrimaryHDU(data=data, header=header)])
+        hdul.writeto(tmp, overwrite=True)
+    return os.fspath(path)

@@ -1,0 +1,353 @@
+"""Measuring whole archives into one record (an ``xarray.Dataset``) and writing it.
+
+The record has one entry per map along ``time`` and the two polar caps along
+``hemisphere``. It writes to CSV (one row per map, the columns of
+:data:`CSV_COLUMNS`) and to netCDF (the Dataset itself, units and long names as
+attributes). Files that cannot be read are listed, never fatal.
+"""
+
+from __future__ import annotations
+
+import csv
+import glob
+import os
+from collections.abc import Callable, Iterable, Iterator
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from ._version import __version__
+from ._io import atomic_path
+from .errors import PolarfluxError, SettingsError
+from .geometry import HEMISPHERES, as_degrees
+from .maps import quiet_time_warnings, read_map
+from .measure import FILL_METHODS, axial_dipole, measure_caps
+
+__all__ = [
+    "CSV_COLUMNS",
+    "FITS_SUFFIXES",
+    "Failure",
+    "expand_inputs",
+    "measure_file",
+    "iter_measurements",
+    "measure_archive",
+    "rows_to_dataset",
+    "write_record",
+    "read_record",
+]
+
+FITS_SUFFIXES = (".fits", ".fts", ".fit", ".fz", ".fits.gz", ".fts.gz", ".fit.gz")
+
+CSV_COLUMNS = (
+    "source",
+    "instrument",
+    "carrington_rotation",
+    "time",
+    "cap_deg",
+    "north_signed_flux_mx",
+    "north_unsigned_flux_mx",
+    "north_mean_field_g",
+    "north_coverage",
+    "south_signed_flux_mx",
+    "south_unsigned_flux_mx",
+    "south_mean_field_g",
+    "south_coverage",
+    "axial_dipole_g",
+)
+
+# Dataset variable -> (CSV column suffix, units, long name)
+_CAP_VARIABLES = {
+    "signed_flux": ("signed_flux_mx", "Mx", "signed magnetic flux poleward of the cap latitude"),
+    "unsigned_flux": ("unsigned_flux_mx", "Mx", "unsigned magnetic flux poleward of the cap latitude"),
+    "mean_field": ("mean_field_g", "G", "mean radial field of the polar cap (signed flux / cap area)"),
+    "coverage": ("coverage", "1", "fraction of the polar cap area with observed data"),
+}
+
+
+@dataclass(frozen=True)
+class Failure:
+    """A file that could not be measured, and why (one line)."""
+
+    source: str
+    reason: str
+
+    def __str__(self) -> str:
+        return self.reason if self.reason.startswith(self.source) else f"{self.source}: {self.reason}"
+
+
+def _is_fits_name(name: str) -> bool:
+    lower = name.lower()
+    return lower.endswith(FITS_SUFFIXES)
+
+
+def expand_inputs(inputs: Iterable[str | os.PathLike]) -> tuple[list[str], list[Failure]]:
+    """Turn files, folders (searched recursively for FITS names) and glob patterns into files.
+
+    Returns the files in a stable order without duplicates, and a Failure for
+    every input that names nothing.
+    """
+    files: list[str] = []
+    problems: list[Failure] = []
+    seen: set[str] = set()
+
+    def add(path: str) -> None:
+        key = os.path.realpath(path)
+        if key not in seen:
+            seen.add(key)
+            files.append(path)
+
+    for item in inputs:
+        text = os.fspath(item)
+        if os.path.isdir(text):
+            found = []
+            for root, dirs, names in os.walk(text, followlinks=False):
+                dirs.sort()
+                found.extend(os.path.join(root, n) for n in names if _is_fits_name(n))
+            if not found:
+                problems.append(Failure(text, f"{text}: folder holds no FITS files"))
+            for path in sorted(found):
+                add(path)
+        elif os.path.lexists(text):
+            add(text)
+        else:
+            matches = sorted(glob.glob(text, recursive=True))
+            if not matches:
+                problems.append(Failure(text, f"{text}: no such file, and no file matches it as a pattern"))
+            for path in matches:
+                if os.path.isdir(path):
+                    problems.append(Failure(path, f"{path}: is a directory matched by a pattern; skipped"))
+                else:
+                    add(path)
+    return files, problems
+
+
+def measure_file(path: str, cap_latitude: float = 60.0, fill: str = "none", field: str = "radial") -> dict:
+    """Read and measure one map; return one record row (the CSV columns)."""
+    m = read_map(path, field=field)
+    caps = measure_caps(m, cap_latitude=cap_latitude, fill=fill)
+    with quiet_time_warnings():
+        time = None if m.time is None else m.time.utc.isot
+    row = {
+        "source": m.source,
+        "instrument": m.instrument,
+        "carrington_rotation": m.carrington_rotation,
+        "time": time,
+        "cap_deg": caps.cap_latitude,
+    }
+    for hemisphere in HEMISPHERES:
+        cap = caps[hemisphere]
+        row[f"{hemisphere}_signed_flux_mx"] = cap.signed_flux.to_value("Mx")
+        row[f"{hemisphere}_unsigned_flux_mx"] = cap.unsigned_flux.to_value("Mx")
+        row[f"{hemisphere}_mean_field_g"] = cap.mean_field.to_value("G")
+        row[f"{hemisphere}_coverage"] = cap.coverage
+    row["axial_dipole_g"] = axial_dipole(m, fill=fill, cap_latitude=cap_latitude).to_value("G")
+    return row
+
+
+def _measure_or_fail(args: tuple) -> tuple[str, dict | None, str | None]:
+    path, cap, fill, field = args
+    try:
+        return path, measure_file(path, cap, fill, field), None
+    except PolarfluxError as exc:
+        return path, None, str(exc)
+    except Exception as exc:  # an unexpected failure must not end the batch
+        return path, None, f"{path}: unexpected {type(exc).__name__}: {exc}"
+
+
+def _check_settings(cap_latitude, fill: str, field: str, jobs: int) -> float:
+    cap = as_degrees(cap_latitude, "cap_latitude")
+    if not 0.0 < cap < 90.0:
+        raise SettingsError(f"cap latitude {cap} must lie strictly between 0 and 90 degrees")
+    if fill not in FILL_METHODS:
+        raise SettingsError(f"fill={fill!r} is not one of {FILL_METHODS}")
+    if field not in ("radial", "los"):
+        raise SettingsError(f"field={field!r} is not 'radial' or 'los'")
+    if int(jobs) < 1:
+        raise SettingsError(f"jobs={jobs} must be at least 1")
+    return cap
+
+
+def iter_measurements(
+    paths: Iterable[str],
+    cap_latitude=60,
+    fill: str = "none",
+    field: str = "radial",
+    jobs: int = 1,
+) -> Iterator[tuple[str, dict | None, str | None]]:
+    """Measure maps one by one, yielding ``(path, row, None)`` or ``(path, None, reason)``.
+
+    With ``jobs > 1`` the maps are measured in a pool of processes; results come
+    back in input order and only small rows cross process boundaries.
+    """
+    cap = _check_settings(cap_latitude, fill, field, jobs)
+    work = [(os.fspath(p), cap, fill, field) for p in paths]
+    if jobs == 1 or len(work) < 2:
+        for item in work:
+            yield _measure_or_fail(item)
+        return
+    with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
+        chunk = max(1, min(16, len(work) // (4 * int(jobs)) or 1))
+        yield from pool.map(_measure_or_fail, work, chunksize=chunk)
+
+
+def measure_archive(
+    paths: Iterable[str | os.PathLike],
+    cap_latitude=60,
+    jobs: int = 1,
+    fill: str = "none",
+    field: str = "radial",
+    progress: Callable[[str, str | None], None] | None = None,
+):
+    """Measure every map and return the record as an ``xarray.Dataset``.
+
+    Parameters
+    ----------
+    paths : iterable of paths
+        Files, folders or glob patterns (see :func:`expand_inputs`).
+    cap_latitude : float or Quantity
+        Cap boundary in degrees.
+    jobs : int
+        Processes to use.
+    fill, field
+        As for :func:`~polarflux.measure.measure_caps` and :func:`~polarflux.maps.read_map`.
+    progress : callable, optional
+        Called as ``progress(path, error_or_None)`` after each file.
+
+    Returns
+    -------
+    xarray.Dataset
+        Dims ``time`` (one entry per measured map, sorted by time) and
+        ``hemisphere`` ("north", "south"). Files that failed are listed in
+        ``attrs["failures"]`` (one "file: reason" per line) and counted in
+        ``attrs["failed_count"]``.
+    """
+    files, failures = expand_inputs(paths)
+    rows = []
+    for path, row, error in iter_measurements(files, cap_latitude, fill, field, jobs):
+        if error is None:
+            rows.append(row)
+        else:
+            failures.append(Failure(path, error))
+        if progress is not None:
+            progress(path, error)
+    cap = as_degrees(cap_latitude, "cap_latitude")
+    return rows_to_dataset(rows, cap_deg=cap, fill=fill, field=field, failures=failures)
+
+
+def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, failures: Iterable[Failure] = ()):
+    """Build the record Dataset from measurement rows (the CSV columns)."""
+    import xarray as xr
+
+    def sort_key(row: dict):
+        return (row["time"] is None, row["time"] or "", row["source"])
+
+    rows = sorted(rows, key=sort_key)
+    times = np.array(
+        [np.datetime64(r["time"], "ns") if r["time"] else np.datetime64("NaT", "ns") for r in rows],
+        dtype="datetime64[ns]",
+    )
+    data_vars = {}
+    for name, (suffix, units, long_name) in _CAP_VARIABLES.items():
+        values = np.array(
+            [[r[f"{h}_{suffix}"] for h in HEMISPHERES] for r in rows], dtype=np.float64
+        ).reshape(len(rows), len(HEMISPHERES))
+        data_vars[name] = (("time", "hemisphere"), values, {"units": units, "long_name": long_name})
+    data_vars["axial_dipole"] = (
+        ("time",),
+        np.array([r["axial_dipole_g"] for r in rows], dtype=np.float64),
+        {"units": "G", "long_name": "axial dipole moment (3/4pi) integral of Br sin(latitude) dOmega"},
+    )
+    data_vars["carrington_rotation"] = (
+        ("time",),
+        np.array([-1 if r["carrington_rotation"] is None else int(r["carrington_rotation"]) for r in rows],
+                 dtype=np.int64),
+        {"long_name": "Carrington rotation number", "missing_value": -1},
+    )
+    data_vars["source"] = (("time",), np.array([r["source"] for r in rows], dtype=str),
+                           {"long_name": "input file"})
+    data_vars["instrument"] = (("time",), np.array([r["instrument"] for r in rows], dtype=str),
+                               {"long_name": "instrument"})
+    failures = list(failures)
+    attrs = {
+        "title": "polar-cap magnetic flux record",
+        "cap_deg": float(cap_deg),
+        "fill": fill,
+        "field": field,
+        "failed_count": len(failures),
+        "failures": "\n".join(str(f) for f in failures),
+        "created_by": f"polarflux {__version__}",
+    }
+    ds = xr.Dataset(
+        data_vars,
+        coords={
+            "time": ("time", times, {"long_name": "map time (UTC)"}),
+            "hemisphere": ("hemisphere", np.array(HEMISPHERES, dtype=str)),
+        },
+        attrs=attrs,
+    )
+    return ds
+
+
+def _dataset_rows(ds) -> Iterator[dict]:
+    for i in range(ds.sizes["time"]):
+        t = ds["time"].values[i]
+        rotation = int(ds["carrington_rotation"].values[i])
+        row = {
+            "source": str(ds["source"].values[i]),
+            "instrument": str(ds["instrument"].values[i]),
+            "carrington_rotation": "" if rotation < 0 else rotation,
+            "time": "" if np.isnat(t) else np.datetime_as_string(t, unit="ms"),
+            "cap_deg": repr(float(ds.attrs["cap_deg"])),
+        }
+        for name, (suffix, _, _) in _CAP_VARIABLES.items():
+            for j, hemisphere in enumerate(HEMISPHERES):
+                row[f"{hemisphere}_{suffix}"] = repr(float(ds[name].values[i, j]))
+        row["axial_dipole_g"] = repr(float(ds["axial_dipole"].values[i]))
+        yield row
+
+
+def write_record(ds, path: str | os.PathLike, force: bool = False) -> Path:
+    """Write the record to ``.csv`` or ``.nc``, atomically; refuse to overwrite unless ``force``."""
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in (".csv", ".nc"):
+        raise SettingsError(f"{path}: output must end in .csv or .nc")
+    with atomic_path(path, force=force) as tmp:
+        if suffix == ".csv":
+            with open(tmp, "w", newline="", encoding="utf-8") as handle:
+                writer = csv.DictWriter(handle, fieldnames=CSV_COLUMNS)
+                writer.writeheader()
+                writer.writerows(_dataset_rows(ds))
+        else:
+            ds.to_netcdf(tmp, engine="netcdf4")
+    return path
+
+
+def read_record(path: str | os.PathLike):
+    """Read a record written by :func:`write_record` (``.nc`` or ``.csv``) as a Dataset."""
+    import xarray as xr
+
+    path = Path(path)
+    if path.suffix.lower() == ".nc":
+        with xr.open_dataset(path, engine="netcdf4") as ds:
+            return ds.load()
+    if path.suffix.lower() != ".csv":
+        raise SettingsError(f"{path}: a record is a .nc or .csv file")
+    with open(path, newline="", encoding="utf-8") as handle:
+        reader = csv.DictReader(handle)
+        missing = [c for c in CSV_COLUMNS if c not in (reader.fieldnames or ())]
+        if missing:
+            raise PolarfluxError(f"{path}: not a polarflux record; missing columns {', '.join(missing)}")
+        raw = list(reader)
+    rows = []
+    for r in raw:
+        row = dict(r)
+        row["carrington_rotation"] = int(r["carrington_rotation"]) if r["carrington_rotation"] else None
+        row["time"] = r["time"] or None
+        for column in CSV_COLUMNS[5:]:
+            row[column] = float(r[column])
+        rows.append(row)
+    cap = float(raw[0]["cap_deg"]) if raw else float("nan")
+    return rows_to_dataset(rows, cap_deg=cap, fill="", field="")
