@@ -174,7 +174,8 @@ class SynopticMap:
             raise MapFormatError(f"{source or 'array'}: unknown grid {grid!r}; expected one of {GRIDS}")
         lon_edges = lon_start + np.linspace(0.0, 360.0, nlon + 1)
         if time is not None and not isinstance(time, Time):
-            time = Time(time)
+            with quiet_time_warnings():
+                time = Time(time, scale="utc")
         return cls(br, lat_edges, lon_edges, carrington_rotation, time, instrument, grid, source)
 
 

@@ -1,0 +1,60 @@
+"""Shared helpers: maps of known fields on both grid kinds, and FITS files built from headers."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from astropy.io import fits
+
+import polarflux as pf
+
+
+def cell_mean_sine(m: pf.SynopticMap) -> np.ndarray:
+    """Cell-area average of sin(latitude) per row: (sin a + sin b) / 2 on any grid."""
+    s = m.sin_lat_edges
+    return 0.5 * (s[:-1] + s[1:])
+
+
+def field_map(values_per_row, nlon: int, grid: str) -> pf.SynopticMap:
+    values_per_row = np.asarray(values_per_row, dtype=float)
+    return pf.SynopticMap.from_array(np.repeat(values_per_row[:, None], nlon, axis=1), grid=grid)
+
+
+def blank_map(nlat: int, nlon: int, grid: str) -> pf.SynopticMap:
+    return pf.SynopticMap.from_array(np.zeros((nlat, nlon)), grid=grid)
+
+
+def write_fits(path, data, header: dict | fits.Header, compress: bool = False) -> str:
+    hdr = fits.Header(header) if not isinstance(header, fits.Header) else header.copy()
+    for key in ("CHECKSUM", "DATASUM", "NAXIS", "NAXIS1", "NAXIS2", "NAXIS3", "BITPIX", "SIMPLE", "EXTEND"):
+        hdr.remove(key, ignore_missing=True, remove_all=True)
+    if compress:
+        hdul = fits.HDUList([fits.PrimaryHDU(), fits.CompImageHDU(data=data, header=hdr)])
+    else:
+        hdul = fits.HDUList([fits.PrimaryHDU(data=data, header=hdr)])
+    hdul.writeto(path, overwrite=True)
+    return str(path)
+
+
+def cea_header(nlat: int = 180, nlon: int = 360, **extra) -> dict:
+    """A plain sine-latitude CEA header (latitude step in sine latitude, as many archives write)."""
+    header = {
+        "CTYPE1": "CRLN-CEA", "CTYPE2": "CRLT-CEA",
+        "CUNIT1": "deg", "CUNIT2": "Sine Latitude",
+        "CRPIX1": (nlon + 1) / 2, "CRVAL1": 180.0, "CDELT1": 360.0 / nlon,
+        "CRPIX2": (nlat + 1) / 2, "CRVAL2": 0.0, "CDELT2": 2.0 / nlat,
+        "BUNIT": "G", "CAR_ROT": 2400, "DATE-OBS": "2040-05-01T00:00:00",
+    }
+    header.update(extra)
+    return header
+
+
+@pytest.fixture
+def index_data():
+    """Data whose values encode their own FITS (row, column): value = column + 1000 * row."""
+
+    def make(nlat: int, nlon: int) -> np.ndarray:
+        j, i = np.mgrid[0:nlat, 0:nlon]
+        return (i + 1000.0 * j).astype(np.float32)
+
+    return make
