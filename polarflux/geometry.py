@@ -10,7 +10,8 @@ exact on any grid, sine-latitude included.
 from __future__ import annotations
 
 import numpy as np
-from astropy import constants, units as u
+from astropy import constants
+from astropy import units as u
 
 from .errors import SettingsError
 

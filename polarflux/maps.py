@@ -24,7 +24,7 @@ import os
 import re
 import warnings
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -63,7 +63,6 @@ _DRMS_TIME = re.compile(
 )
 
 
-@dataclass(eq=False)
 class SynopticMap:
     """One Carrington-rotation synoptic map of the radial field.
 
@@ -85,47 +84,108 @@ class SynopticMap:
         ``grid`` is "sine-latitude" (equal-area rows) or "equal-angle".
     header : dict
         The header keywords the map was read from (upper-case keys).
+
+    The constructor copies ``br`` (``copy=False`` hands the array over: do not
+    change it afterwards except through ``m.br``).
+
+    Notes
+    -----
+    A map read from a float32 file keeps its pixels as float32 until ``br`` is
+    first used, which then converts them to float64 once; the measures work on
+    the stored pixels directly (accumulating in float64), so measuring an
+    archive never doubles its memory traffic.
     """
 
-    br: np.ndarray
-    lat_edges: np.ndarray
-    lon_edges: np.ndarray
-    carrington_rotation: int | None = None
-    time: Time | None = None
-    instrument: str = ""
-    grid: str = "sine-latitude"
-    source: str = ""
-    lat: np.ndarray | None = None
-    lon: np.ndarray | None = None
-    header: dict = field(default_factory=dict, repr=False)
-
-    def __post_init__(self) -> None:
-        self.br = np.asarray(self.br, dtype=np.float64)
-        self.lat_edges = np.asarray(self.lat_edges, dtype=np.float64)
-        self.lon_edges = np.asarray(self.lon_edges, dtype=np.float64)
+    def __init__(
+        self,
+        br: Any,
+        lat_edges: Any,
+        lon_edges: Any,
+        carrington_rotation: int | None = None,
+        time: Time | None = None,
+        instrument: str = "",
+        grid: str = "sine-latitude",
+        source: str = "",
+        lat: Any = None,
+        lon: Any = None,
+        header: dict | None = None,
+        copy: bool = True,
+    ) -> None:
+        if isinstance(br, u.Quantity):
+            br = br.to_value(u.G)
+        values = np.asarray(br)
+        if values.dtype not in (np.float32, np.float64) or not values.dtype.isnative:
+            values = values.astype(np.float64)
+        elif copy:
+            # The map keeps sums of its pixels: it must own them.
+            values = values.copy()
+        self._values = values
+        self._row_stats: RowStatistics | None = None
+        self.lat_edges = np.asarray(lat_edges, dtype=np.float64)
+        self.lon_edges = np.asarray(lon_edges, dtype=np.float64)
+        self.carrington_rotation = carrington_rotation
+        self.time = time
+        self.instrument = instrument
+        self.grid = grid
+        self.source = source
+        self.header = dict(header or {})
         name = self.source or "map"
-        if self.br.ndim != 2:
-            raise MapFormatError(f"{name}: br must be 2-D (lat, lon), got shape {self.br.shape}")
-        nlat, nlon = self.br.shape
+        if values.ndim != 2:
+            raise MapFormatError(f"{name}: br must be 2-D (lat, lon), got shape {values.shape}")
+        nlat, nlon = values.shape
         if self.lat_edges.shape != (nlat + 1,) or self.lon_edges.shape != (nlon + 1,):
             raise MapFormatError(
-                f"{name}: edges do not match data shape {self.br.shape}: "
+                f"{name}: edges do not match data shape {values.shape}: "
                 f"{self.lat_edges.size} latitude and {self.lon_edges.size} longitude edges"
             )
         if np.any(np.diff(self.lat_edges) <= 0) or np.any(np.diff(self.lon_edges) <= 0):
             raise MapFormatError(f"{name}: cell edges must be strictly ascending")
         if self.grid not in GRIDS:
             raise MapFormatError(f"{name}: unknown grid {self.grid!r}; expected one of {GRIDS}")
-        if self.lat is None:
-            self.lat = _centres_from_edges(self.lat_edges, self.grid)
-        if self.lon is None:
-            self.lon = 0.5 * (self.lon_edges[:-1] + self.lon_edges[1:])
-        self.lat = np.asarray(self.lat, dtype=np.float64)
-        self.lon = np.asarray(self.lon, dtype=np.float64)
+        self.lat = np.asarray(
+            _centres_from_edges(self.lat_edges, self.grid) if lat is None else lat, dtype=np.float64
+        )
+        self.lon = np.asarray(
+            0.5 * (self.lon_edges[:-1] + self.lon_edges[1:]) if lon is None else lon, dtype=np.float64
+        )
+
+    @property
+    def br(self) -> np.ndarray:
+        """Radial field, Gauss, float64 [lat, lon]; NaN where there is no data."""
+        if self._values.dtype != np.float64:
+            self._values = self._values.astype(np.float64)
+        self._row_stats = None  # the caller may change the array in place
+        return self._values
+
+    @br.setter
+    def br(self, value: Any) -> None:
+        value = np.asarray(value, dtype=np.float64)
+        if value.shape != self._values.shape:
+            raise MapFormatError(f"{self.source or 'map'}: new br shape {value.shape} != {self._values.shape}")
+        self._values = value
+        self._row_stats = None
+
+    @property
+    def values(self) -> np.ndarray:
+        """The stored pixels (float32 or float64) without conversion; do not modify."""
+        return self._values
+
+    def row_statistics(self) -> RowStatistics:
+        """Per row: sum and sum of absolute values of the finite pixels, and their count."""
+        if self._row_stats is None:
+            self._row_stats = _row_statistics(self._values)
+        return self._row_stats
 
     @property
     def shape(self) -> tuple[int, int]:
-        return self.br.shape
+        return self._values.shape
+
+    def __repr__(self) -> str:
+        return (
+            f"SynopticMap(shape={self.shape}, grid={self.grid!r}, "
+            f"carrington_rotation={self.carrington_rotation}, time={None if self.time is None else self.time.isot}, "
+            f"instrument={self.instrument!r}, source={self.source!r})"
+        )
 
     @property
     def sin_lat_edges(self) -> np.ndarray:
@@ -176,7 +236,98 @@ class SynopticMap:
         if time is not None and not isinstance(time, Time):
             with quiet_time_warnings():
                 time = Time(time, scale="utc")
-        return cls(br, lat_edges, lon_edges, carrington_rotation, time, instrument, grid, source)
+        return cls(br, lat_edges, lon_edges, carrington_rotation, time, instrument, grid, source, copy=False)
+
+
+class RowStatistics:
+    """Per-row sums over the finite pixels of a map (float64), and their counts.
+
+    Sums of absolute values are computed only for the rows asked for (the polar
+    caps), once, and kept.
+    """
+
+    def __init__(self, values: np.ndarray, sums: np.ndarray, counts: np.ndarray) -> None:
+        self._values = values
+        self.sums = sums
+        self.counts = counts
+        self._abs_sums = np.full(sums.shape, np.nan)
+
+    def abs_sums(self, rows: slice) -> np.ndarray:
+        """Sum of |pixel| over the finite pixels of each row in ``rows``."""
+        cached = self._abs_sums[rows]
+        todo = np.flatnonzero(np.isnan(cached))
+        if todo.size:
+            start = rows.start or 0
+            sub = self._values[start + todo[0] : start + todo[-1] + 1]
+            if np.all(self.counts[start + todo[0] : start + todo[-1] + 1] == sub.shape[1]):
+                result = np.abs(sub).sum(axis=1)
+            else:
+                result = np.abs(np.where(np.isfinite(sub), sub, 0.0)).sum(axis=1)
+            cached[todo[0] : todo[-1] + 1] = result
+        return cached
+
+    def scale(self, values: np.ndarray, factor) -> None:
+        """Follow the pixels after they were replaced by ``values`` = old x ``factor`` (> 0)."""
+        self._values = values
+        self.sums *= factor
+        self._abs_sums *= factor
+
+
+_BLOCK_ROWS = 64  # rows copied and summed at once: small enough to stay in cache
+
+
+def _block_statistics(block: np.ndarray, sums: np.ndarray, counts: np.ndarray, clean: bool) -> None:
+    """Row sums and finite counts of ``block``; with ``clean``, non-finite pixels become NaN in place.
+
+    Rows are summed by numpy's pairwise summation in the pixels' own precision
+    (for float32 an error near 1e-7 of the row's unsigned sum, the precision of
+    the stored pixels); only rows holding NaN or inf take the slower masked pass.
+    """
+    sums[:] = block.sum(axis=1)
+    bad = ~np.isfinite(sums)
+    if bad.any():
+        sub = block[bad]
+        finite = np.isfinite(sub)
+        sums[bad] = np.where(finite, sub, 0.0).sum(axis=1)
+        counts[bad] = finite.sum(axis=1)
+        if clean:
+            block[bad] = np.where(finite, sub, np.nan)
+
+
+def _row_statistics(values: np.ndarray) -> RowStatistics:
+    """Row statistics of a map's pixels without changing them."""
+    nlat, nlon = values.shape
+    sums, counts = np.empty(nlat), np.full(nlat, nlon, dtype=np.int64)
+    for start in range(0, nlat, _BLOCK_ROWS):
+        rows = slice(start, start + _BLOCK_ROWS)
+        _block_statistics(values[rows], sums[rows], counts[rows], clean=False)
+    return RowStatistics(values, sums, counts)
+
+
+def _copy_with_statistics(
+    view: np.ndarray, dtype, roll: int, sentinels: tuple[float, ...]
+) -> tuple[np.ndarray, RowStatistics]:
+    """Copy ``view`` (columns rolled left by ``roll``) into a new native array, block by block.
+
+    Each block is summed while it is in cache, so the copy and the row sums cost
+    about one pass over the pixels. Sentinel values and non-finite pixels become
+    NaN in the copy.
+    """
+    nlat, nlon = view.shape
+    out = np.empty((nlat, nlon), dtype=dtype)
+    sums, counts = np.empty(nlat), np.full(nlat, nlon, dtype=np.int64)
+    for start in range(0, nlat, _BLOCK_ROWS):
+        rows = slice(start, min(start + _BLOCK_ROWS, nlat))
+        block = out[rows]
+        if roll:
+            block[:, : nlon - roll] = view[rows, roll:]
+            block[:, nlon - roll :] = view[rows, :roll]
+        else:
+            block[...] = view[rows]
+        for value in sentinels:
+            block[block == value] = np.nan
+        _block_statistics(block, sums[rows], counts[rows], clean=True)
+    return out, RowStatistics(out, sums, counts)
 
 
 def _centres_from_edges(lat_edges: np.ndarray, grid: str) -> np.ndarray:
@@ -231,18 +382,19 @@ def read_map(
     if hasattr(path, "meta") and hasattr(path, "data"):
         header = {str(k).upper(): v for k, v in dict(path.meta).items()}
         source = str(header.get("FILENAME", "") or "sunpy map")
-        data = np.asarray(path.data)
+        values, stats, lat_axis, lon_axis = _prepare(header, np.asarray(path.data), plane, source)
     else:
         source = os.fspath(path)
-        header, data = _read_fits_image(source)
-    data = _select_plane(data, plane, source)
-    return _build_map(data, header, source, field, los_max_factor)
+        header, values, stats, lat_axis, lon_axis = _read_fits_image(source, plane)
+    return _build_map(values, stats, header, lat_axis, lon_axis, source, field, los_max_factor)
 
 
-def _read_fits_image(source: str) -> tuple[dict, np.ndarray]:
-    """Return (header, data copy) of the first image HDU with 2-D or more data."""
-    from astropy.io import fits
+def _read_fits_image(source: str, plane: int | None) -> tuple[dict, np.ndarray, _LatAxis, _LonAxis]:
+    """Header, oriented pixel copy and axes of the first image HDU holding 2-D or more data.
 
+    The file is memory-mapped only while the pixels are copied out, then closed:
+    no map keeps a file handle or a view into the file alive.
+    """
     if os.path.isdir(source):
         raise MapFormatError(f"{source}: is a directory, not a FITS file")
     try:
@@ -252,28 +404,81 @@ def _read_fits_image(source: str) -> tuple[dict, np.ndarray]:
     if size == 0:
         raise MapFormatError(f"{source}: empty file")
     try:
-        with warnings.catch_warnings():
-            # Truncation and header damage arrive as warnings; treat them as errors.
-            warnings.simplefilter("error")
-            with fits.open(source, memmap=False, lazy_load_hdus=True) as hdul:
-                for hdu in hdul:
-                    if not getattr(hdu, "is_image", False):
-                        continue
-                    naxis = int(hdu.header.get("NAXIS", 0))
-                    if naxis < 2:
-                        continue
-                    data = hdu.data
-                    if data is None:
-                        continue
-                    # A copy: never keep a view into the file's buffer alive.
-                    return dict(hdu.header.items()), np.array(data, copy=True)
+        try:
+            return _first_image(source, plane, memmap=True)
+        except ValueError as exc:
+            if "memory-mapped" not in str(exc):
+                raise
+            # astropy cannot memory-map scaled integer data (BZERO/BSCALE/BLANK)
+            return _first_image(source, plane, memmap=False)
     except MapFormatError:
         raise
     except PermissionError:
         raise MapFormatError(f"{source}: cannot open (permission denied)") from None
-    except Exception as exc:  # astropy raises OSError, ValueError, warnings, ...
+    except Exception as exc:  # astropy raises OSError, ValueError, TypeError, warnings, ...
         raise MapFormatError(f"{source}: not a readable FITS file ({_first_line(exc)})") from None
+
+
+def _first_image(source: str, plane: int | None, memmap: bool):
+    from astropy.io import fits
+    from astropy.utils.exceptions import AstropyUserWarning
+
+    with warnings.catch_warnings():
+        # Truncation and header damage arrive as astropy warnings; treat them as errors.
+        warnings.simplefilter("error", AstropyUserWarning)
+        with fits.open(source, memmap=memmap, lazy_load_hdus=True) as hdul:
+            for hdu in hdul:
+                if not getattr(hdu, "is_image", False) or int(hdu.header.get("NAXIS", 0)) < 2:
+                    continue
+                data = hdu.data
+                if data is None:
+                    continue
+                header = dict(hdu.header.items())
+                values, stats, lat_axis, lon_axis = _prepare(header, data, plane, source)
+                del data
+                return header, values, stats, lat_axis, lon_axis
     raise MapFormatError(f"{source}: no 2-D image in any HDU")
+
+
+def _prepare(header: Mapping, data: np.ndarray, plane: int | None, source: str):
+    """Select the plane, read the axes from the header, and copy the pixels out in map order."""
+    data = _select_plane(data, plane, source)
+    nlat, nlon = data.shape
+    lat_axis = _latitude_axis(header, nlat, source)
+    lon_axis = _longitude_axis(header, nlon, source)
+    if lat_axis.projection != lon_axis.projection:
+        raise MapFormatError(
+            f"{source}: longitude and latitude axes disagree on the projection "
+            f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
+        )
+    return (*_oriented_copy(data, header, lat_axis, lon_axis), lat_axis, lon_axis)
+
+
+def _oriented_copy(
+    data: np.ndarray, header: Mapping, lat_axis: _LatAxis, lon_axis: _LonAxis
+) -> tuple[np.ndarray, RowStatistics]:
+    """One copy of the pixels: south row first, longitude ascending, native byte order.
+
+    Float32 data stay float32 (float64 on first use of ``SynopticMap.br``); other
+    types become float64. Integer ``BLANK`` values, a numeric ``MISSING`` value,
+    NaN and inf become NaN. Returns the copy and its row statistics.
+    """
+    view = data
+    if lat_axis.flip:
+        view = view[::-1]
+    if lon_axis.drop_last:
+        view = view[:, :-1]
+    if lon_axis.flip:
+        view = view[:, ::-1]
+    dtype = np.float32 if data.dtype.kind == "f" and data.dtype.itemsize <= 4 else np.float64
+    sentinels = []
+    blank = header.get("BLANK")
+    if data.dtype.kind in "iu" and isinstance(blank, int) and not isinstance(blank, bool):
+        sentinels.append(float(blank))
+    missing = header.get("MISSING")
+    if isinstance(missing, (int, float)) and not isinstance(missing, bool) and math.isfinite(missing):
+        sentinels.append(float(missing))
+    return _copy_with_statistics(view, dtype, lon_axis.roll, tuple(sentinels))
 
 
 def _first_line(exc: BaseException) -> str:
@@ -302,46 +507,28 @@ def _select_plane(data: np.ndarray, plane: int | None, source: str) -> np.ndarra
 
 
 def _build_map(
-    data: np.ndarray, header: Mapping, source: str, field: str, los_max_factor: float
+    values: np.ndarray,
+    stats: RowStatistics,
+    header: Mapping,
+    lat_axis: _LatAxis,
+    lon_axis: _LonAxis,
+    source: str,
+    field: str,
+    los_max_factor: float,
 ) -> SynopticMap:
-    nlat, nlon = data.shape
-    lat_axis = _latitude_axis(header, nlat, source)
-    lon_axis = _longitude_axis(header, nlon, source)
-    if lat_axis.projection != lon_axis.projection:
-        raise MapFormatError(
-            f"{source}: longitude and latitude axes disagree on the projection "
-            f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
-        )
     factor = _gauss_per_unit(header, source)
-
-    br = np.asarray(data, dtype=np.float64)
-    if br is data:
-        br = br.copy()
-    missing = header.get("MISSING")
-    if isinstance(missing, (int, float)) and not isinstance(missing, bool) and math.isfinite(missing):
-        br[br == missing] = np.nan
-    total = br.sum()
-    if not math.isfinite(total):  # some NaN or inf: make every non-finite value NaN
-        bad = ~np.isfinite(br)
-        if bad.all():
-            raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
-        br[bad] = np.nan
+    if stats.counts.sum() == 0:
+        raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
+    if (factor != 1.0 or field == "los") and values.dtype != np.float64:
+        values = values.astype(np.float64)  # scaled pixels keep full precision
     if factor != 1.0:
-        br *= factor
-
-    if lat_axis.flip:
-        br = br[::-1]
-    if lon_axis.drop_last:
-        br = br[:, :-1]
-    if lon_axis.flip:
-        br = br[:, ::-1]
-    if lon_axis.roll:
-        br = np.roll(br, -lon_axis.roll, axis=1)
-    br = np.ascontiguousarray(br)
-
+        values *= factor
+        stats.scale(values, factor)
     if field == "los":
         cosine = np.cos(np.deg2rad(lat_axis.centres))
-        br /= np.maximum(cosine, 1.0 / los_max_factor)[:, None]
+        inverse = 1.0 / np.maximum(cosine, 1.0 / los_max_factor)
+        values *= inverse[:, None]
+        stats.scale(values, inverse)
 
     with quiet_time_warnings():
         time = _map_time(header, source)
@@ -355,8 +542,8 @@ def _build_map(
         if str(header.get(key, "")).strip():
             instrument = str(header[key]).strip()
             break
-    return SynopticMap(
-        br=br,
+    m = SynopticMap(
+        br=values,
         lat_edges=lat_axis.edges,
         lon_edges=lon_axis.edges,
         carrington_rotation=rotation,
@@ -367,7 +554,10 @@ def _build_map(
         lat=lat_axis.centres,
         lon=lon_axis.centres,
         header=dict(header),
+        copy=False,
     )
+    m._row_stats = stats
+    return m
 
 
 # --------------------------------------------------------------------------- axes

@@ -18,8 +18,8 @@ from pathlib import Path
 
 import numpy as np
 
-from ._version import __version__
 from ._io import atomic_path
+from ._version import __version__
 from .errors import PolarfluxError, SettingsError
 from .geometry import HEMISPHERES, as_degrees
 from .maps import quiet_time_warnings, read_map

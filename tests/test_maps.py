@@ -9,9 +9,9 @@ import numpy as np
 import pytest
 from astropy import units as u
 from astropy.io import fits
+from conftest import cea_header, write_fits
 
 import polarflux as pf
-from conftest import cea_header, write_fits
 from polarflux.maps import write_map
 
 SUNPY_TEST_DATA = None

@@ -11,10 +11,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from astropy import constants, units as u
+from astropy import constants
+from astropy import units as u
+from conftest import blank_map, cell_mean_sine, field_map
 
 import polarflux as pf
-from conftest import blank_map, cell_mean_sine, field_map
 
 R = constants.R_sun.to_value(u.cm)
 GRIDS = ["sine-latitude", "equal-angle"]
@@ -187,3 +188,35 @@ def test_unknown_fill_is_refused():
     m = pf.SynopticMap.from_array(np.ones((18, 36)))
     with pytest.raises(pf.SettingsError, match="fill"):
         pf.measure_caps(m, fill="zeros")
+
+
+def test_float32_maps_measure_like_float64_and_br_is_float64(tmp_path):
+    from polarflux.maps import write_map
+
+    rng = np.random.default_rng(4)
+    br = rng.normal(0, 20, (180, 360))
+    br[:6] = np.nan
+    br[100, 5] = np.nan
+    exact = pf.SynopticMap.from_array(br.astype(np.float32).astype(np.float64))
+    stored = pf.read_map(write_map(pf.SynopticMap.from_array(br), tmp_path / "m.fits"))
+    assert stored.values.dtype == np.float32  # kept as stored until br is used
+    a, b = pf.measure_caps(exact), pf.measure_caps(stored)
+    for h in ("north", "south"):
+        assert b[h].signed_flux.value == pytest.approx(a[h].signed_flux.value, rel=1e-6)
+        assert b[h].unsigned_flux.value == pytest.approx(a[h].unsigned_flux.value, rel=1e-6)
+        assert b[h].coverage == pytest.approx(a[h].coverage, abs=1e-14)
+    assert pf.axial_dipole(stored).value == pytest.approx(pf.axial_dipole(exact).value, rel=1e-5, abs=1e-9)
+    assert stored.br.dtype == np.float64
+
+
+def test_changing_br_in_place_is_seen_by_the_measures():
+    m = pf.SynopticMap.from_array(np.ones((90, 180)))
+    before = pf.measure_caps(m).north.signed_flux
+    m.br[:] *= 3.0
+    after = pf.measure_caps(m).north.signed_flux
+    assert after.value == pytest.approx(3 * before.value, rel=1e-12)
+    source = np.ones((90, 180))
+    m2 = pf.SynopticMap(source, m.lat_edges, m.lon_edges)
+    pf.measure_caps(m2)
+    source[:] = 5.0  # the constructor copied: the map does not change
+    assert pf.measure_caps(m2).north.mean_field.value == pytest.approx(1.0)

@@ -1,0 +1,76 @@
+"""Time per map of read_map + measure_caps + axial_dipole, as a ratio to a plain read.
+
+The reference is ``astropy.io.fits.getdata(path)`` plus one full pass over the data
+(a sum), measured in the same run on the same files, so the ratio is what the
+measurement costs on top of just reading the pixels. Target: at most 1.5.
+
+    python bench/measure.py [--maps 20] [--nlat 1440] [--nlon 3600] [--repeats 3]
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+from astropy.io import fits
+
+import polarflux as pf
+from polarflux.maps import write_map
+
+
+def make_maps(folder: Path, n: int, nlat: int, nlon: int) -> list[Path]:
+    rng = np.random.default_rng(0)
+    paths = []
+    for k in range(n):
+        br = rng.normal(0.0, 10.0, (nlat, nlon)).astype(np.float32)
+        br[: nlat // 40] = np.nan  # a missing polar strip, as real maps have
+        m = pf.SynopticMap.from_array(br, carrington_rotation=2400 + k, time="2040-01-01")
+        paths.append(Path(write_map(m, folder / f"bench_{k:03d}.fits", dtype=np.float32)))
+    return paths
+
+
+def plain(path: Path) -> float:
+    data = fits.getdata(path)
+    return float(np.sum(data))
+
+
+def polar(path: Path) -> float:
+    m = pf.read_map(path)
+    caps = pf.measure_caps(m, 60)
+    return caps.north.signed_flux.value + pf.axial_dipole(m).value
+
+
+def time_each(func, paths) -> float:
+    start = time.perf_counter()
+    for p in paths:
+        func(p)
+    return (time.perf_counter() - start) / len(paths)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--maps", type=int, default=20)
+    parser.add_argument("--nlat", type=int, default=1440)
+    parser.add_argument("--nlon", type=int, default=3600)
+    parser.add_argument("--repeats", type=int, default=3)
+    args = parser.parse_args()
+    with tempfile.TemporaryDirectory(prefix="polarflux-bench-") as tmp:
+        paths = make_maps(Path(tmp), args.maps, args.nlat, args.nlon)
+        time_each(plain, paths)  # warm the page cache
+        ref, ours = [], []
+        for _ in range(args.repeats):  # interleaved, so both see the same machine load
+            ref.append(time_each(plain, paths))
+            ours.append(time_each(polar, paths))
+        r, o = statistics.median(ref), statistics.median(ours)
+        print(f"maps: {args.maps} of {args.nlon} x {args.nlat} float32, repeats: {args.repeats}")
+        print(f"getdata + one pass:                       {1000 * r:8.1f} ms per map")
+        print(f"read_map + measure_caps + axial_dipole:   {1000 * o:8.1f} ms per map")
+        print(f"ratio: {o / r:.2f} (target <= 1.5)")
+
+
+if __name__ == "__main__":
+    main()
