@@ -482,8 +482,11 @@ def _oriented_copy(
 
 
 def _first_line(exc: BaseException) -> str:
+    """The first line of an exception's message, without astropy's advice on keywords."""
     text = str(exc).strip().splitlines()
-    return text[0] if text else type(exc).__name__
+    if not text:
+        return type(exc).__name__
+    return text[0].split(". If this is really a FITS file")[0].rstrip(".")
 
 
 def _select_plane(data: np.ndarray, plane: int | None, source: str) -> np.ndarray:

@@ -263,7 +263,7 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         ("time",),
         np.array([-1 if r["carrington_rotation"] is None else int(r["carrington_rotation"]) for r in rows],
                  dtype=np.int64),
-        {"long_name": "Carrington rotation number", "missing_value": -1},
+        {"long_name": "Carrington rotation number", "comment": "-1 where the map gives none"},
     )
     data_vars["source"] = (("time",), np.array([r["source"] for r in rows], dtype=str),
                            {"long_name": "input file"})

@@ -29,7 +29,9 @@ def test_measure_folder_to_csv(maps, tmp_path, capsys):
     assert main(["measure", str(maps), "--out", str(out)]) == 0
     rows = list(csv.DictReader(open(out, newline="")))
     assert len(rows) == 4 and rows[0]["cap_deg"] == "60.0"
-    assert "measured 4 of 4 maps, 0 failed" in capsys.readouterr().err
+    err = capsys.readouterr().err
+    assert "measured 4 of 4 maps, 0 failed" in err
+    assert "\r" not in err  # no progress bar when stderr is not a terminal
 
 
 def test_measure_reports_bad_files_and_goes_on(maps, tmp_path, capsys):

@@ -375,3 +375,15 @@ def test_refuses_directory(tmp_path):
 
 def test_error_is_a_polarflux_error():
     assert issubclass(pf.MapFormatError, pf.PolarfluxError)
+
+
+def test_maps_kept_alive_hold_no_file_handles(tmp_path):
+    # Archives hold thousands of files: each map's pixels are copied out and its file closed.
+    path = write_map(pf.SynopticMap.from_array(np.ones((90, 180))), tmp_path / "one.fits")
+    fd_dir = "/proc/self/fd"
+    if not os.path.isdir(fd_dir):
+        pytest.skip("needs /proc to count open files")
+    before = len(os.listdir(fd_dir))
+    kept = [pf.read_map(path) for _ in range(200)]
+    assert len(os.listdir(fd_dir)) <= before + 1
+    assert kept[0].values.flags.owndata  # a copy, not a view into a file buffer

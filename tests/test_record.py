@@ -81,6 +81,8 @@ def test_csv_and_netcdf_round_trip(archive, tmp_path):
         np.testing.assert_array_equal(back["time"].values.astype("datetime64[ms]"),
                                       ds["time"].values.astype("datetime64[ms]"))
         assert back["mean_field"].attrs["units"] == "G"
+        assert back["carrington_rotation"].dtype.kind == "i"
+        np.testing.assert_array_equal(back["carrington_rotation"].values, ds["carrington_rotation"].values)
     with pytest.raises(pf.OutputExistsError):
         pf.write_record(ds, csv_path)
     pf.write_record(ds, csv_path, force=True)
