@@ -76,15 +76,8 @@ def demo_map(
     limit = 90.0 - (2.0 + 1.5 * abs(b0))
     hidden = base.lat < -limit if b0 > 0 else base.lat > limit
     br[hidden, :] = np.nan
-    return SynopticMap(
-        br=br,
-        lat_edges=base.lat_edges,
-        lon_edges=base.lon_edges,
-        carrington_rotation=rotation,
-        time=time,
-        instrument=DEMO_INSTRUMENT,
-        grid="sine-latitude",
-        source=f"demo CR {rotation}",
+    return SynopticMap.from_array(
+        br, carrington_rotation=rotation, time=time, instrument=DEMO_INSTRUMENT, source=f"demo CR {rotation}"
     )
 
 
