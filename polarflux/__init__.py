@@ -8,6 +8,7 @@ from .errors import MapFormatError, OutputExistsError, PolarfluxError, SettingsE
 from .maps import SynopticMap, read_map
 from .measure import CapMeasure, CapPair, axial_dipole, fill_polar_gaps, measure_caps
 from .record import measure_archive, read_record, write_record
+from .transport import BipolarRegion, FluxTransport, TransportEnsemble, joy_tilt
 
 __all__ = [
     "__version__",
@@ -25,4 +26,8 @@ __all__ = [
     "measure_archive",
     "read_record",
     "write_record",
+    "FluxTransport",
+    "TransportEnsemble",
+    "BipolarRegion",
+    "joy_tilt",
 ]

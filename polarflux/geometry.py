@@ -23,6 +23,7 @@ __all__ = [
     "spherical_cap_area",
     "dipole_row_weights",
     "as_degrees",
+    "regrid_conservative",
 ]
 
 #: Solar radius in cm: astropy.constants.R_sun (IAU 2015 nominal, 695,700 km).
@@ -88,3 +89,47 @@ def dipole_row_weights(lat_edges_deg) -> np.ndarray:
     """Integral of sin(latitude) d(sin latitude) over each row: (sin^2 b - sin^2 a) / 2."""
     s = sine_edges(lat_edges_deg)
     return 0.5 * (s[1:] ** 2 - s[:-1] ** 2)
+
+
+def _cumulative(values: np.ndarray, widths: np.ndarray, axis: int) -> np.ndarray:
+    """Running integral of ``values * widths`` along ``axis`` at the cell edges (first edge 0)."""
+    moved = np.moveaxis(values * widths, axis, -1)
+    out = np.zeros(moved.shape[:-1] + (moved.shape[-1] + 1,))
+    np.cumsum(moved, axis=-1, out=out[..., 1:])
+    return np.moveaxis(out, -1, axis)
+
+
+def regrid_conservative(values, src_lat_edges, src_lon_edges, dst_lat_edges, dst_lon_edges) -> np.ndarray:
+    """Area-weighted remap of cell averages between latitude-longitude grids, conserving flux.
+
+    Each destination cell gets the exact area-weighted mean of the source cells it
+    overlaps (source values held constant over their cells). Latitude is
+    integrated in sin(latitude), so cell areas are exact; longitude is periodic,
+    and both grids must span the whole sphere. NaN must be removed first.
+
+    Returns an array of shape (len(dst_lat_edges) - 1, len(dst_lon_edges) - 1).
+    """
+    values = np.asarray(values, dtype=np.float64)
+    src_s, dst_s = sine_edges(src_lat_edges), sine_edges(dst_lat_edges)
+    # latitude: integral in d(sin lat), interpolated at the new edges, differenced
+    cum = _cumulative(values, np.diff(src_s)[:, None], axis=0)
+    along_lat = np.diff(_interp_rows(dst_s, src_s, cum), axis=0) / np.diff(dst_s)[:, None]
+    # longitude: periodic running integral
+    src_lon = np.asarray(src_lon_edges, dtype=np.float64)
+    dst_lon = np.asarray(dst_lon_edges, dtype=np.float64)
+    widths = np.diff(src_lon)
+    cum_lon = _cumulative(along_lat, widths[None, :], axis=1)
+    total = cum_lon[:, -1:]
+    period = src_lon[-1] - src_lon[0]
+    shifted = dst_lon - src_lon[0]
+    turns = np.floor(shifted / period)
+    local = shifted - turns * period + src_lon[0]
+    at_edges = _interp_rows(local, src_lon, cum_lon.T).T + turns[None, :] * total
+    return np.diff(at_edges, axis=1) / np.diff(dst_lon)[None, :]
+
+
+def _interp_rows(x_new: np.ndarray, x: np.ndarray, table: np.ndarray) -> np.ndarray:
+    """Linear interpolation of each column of ``table`` (rows at ``x``) to ``x_new``."""
+    index = np.clip(np.searchsorted(x, x_new, side="right") - 1, 0, len(x) - 2)
+    frac = (x_new - x[index]) / (x[index + 1] - x[index])
+    return table[index] * (1.0 - frac)[:, None] + table[index + 1] * frac[:, None]

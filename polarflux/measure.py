@@ -24,6 +24,7 @@ __all__ = [
     "measure_caps",
     "axial_dipole",
     "fill_polar_gaps",
+    "profile_measures",
     "FILL_METHODS",
     "PROFILE_EXPONENT",
 ]
@@ -139,11 +140,10 @@ def measure_caps(m: SynopticMap, cap_latitude=60, fill: str = "none") -> CapPair
         raise SettingsError(f"cap_latitude={cap} must lie strictly between 0 and 90 degrees")
     target = fill_polar_gaps(m, cap) if fill == "profile" else m
     radius2 = SOLAR_RADIUS_CM**2
-    ds = np.diff(sine_edges(m.lat_edges))
     total_width = float(_lon_widths(m).sum())
     results = {}
     for hemisphere in HEMISPHERES:
-        weight = cap_row_fraction(m.lat_edges, cap, hemisphere) * ds * radius2
+        weight = _cap_weights(m.lat_edges, cap, hemisphere) * radius2
         rows = _contiguous(weight > 0)
         w = weight[rows]
         signed_rows, _ = _lon_integrals(target, rows)
@@ -192,6 +192,41 @@ def axial_dipole(m: SynopticMap, fill: str = "none", cap_latitude=60) -> u.Quant
     integrals, _ = _lon_integrals(target)
     moment = dipole_row_weights(m.lat_edges) @ integrals
     return (3.0 / (4.0 * np.pi) * float(moment)) * u.G
+
+
+def _cap_weights(lat_edges, cap: float, hemisphere: str) -> np.ndarray:
+    """Per row: the row's cap area in units of R^2 per radian of longitude (fraction x d sin)."""
+    return cap_row_fraction(lat_edges, cap, hemisphere) * np.diff(sine_edges(lat_edges))
+
+
+def profile_measures(profiles, lat_edges, cap_latitude=60) -> dict:
+    """Polar-cap mean fields and axial dipole of longitude-averaged fields, vectorised.
+
+    The same quantities as :func:`measure_caps` (``mean_field``) and
+    :func:`axial_dipole` give for a fully observed map, computed from its
+    longitude averages: the caps and the dipole only see the axisymmetric part.
+
+    Parameters
+    ----------
+    profiles : array-like, shape (..., nlat)
+        Longitude-averaged radial field, Gauss, row 0 southernmost.
+    lat_edges : array-like, shape (nlat + 1,)
+    cap_latitude : float or Quantity
+
+    Returns
+    -------
+    dict of ndarray, shape (...)
+        ``north_mean_field``, ``south_mean_field``, ``axial_dipole`` (all G).
+    """
+    cap = as_degrees(cap_latitude, "cap_latitude")
+    profiles = np.asarray(profiles, dtype=np.float64)
+    out = {}
+    for hemisphere in HEMISPHERES:
+        weight = _cap_weights(lat_edges, cap, hemisphere)
+        out[f"{hemisphere}_mean_field"] = profiles @ (weight / weight.sum())
+    # (3 / 4 pi) * 2 pi * sum(row mean * row weight)
+    out["axial_dipole"] = 1.5 * (profiles @ dipole_row_weights(lat_edges))
+    return out
 
 
 def fill_polar_gaps(m: SynopticMap, cap_latitude=60, exponent: int = PROFILE_EXPONENT) -> SynopticMap:

@@ -1,0 +1,536 @@
+"""Surface flux transport of the radial field, spectral in longitude, implicit in latitude.
+
+Equation
+--------
+In the frame rotating at the Carrington rate, the radial field B(lat, lon, t) obeys
+
+    dB/dt = - Omega(lat) dB/dlon
+            - 1/(R cos lat) d/dlat (v(lat) cos lat B)
+            + eta [ 1/(R^2 cos lat) d/dlat (cos lat dB/dlat) + 1/(R^2 cos^2 lat) d^2B/dlon^2 ]
+            - B / tau + S
+
+with Omega the differential rotation relative to the Carrington rate, v the
+northward meridional flow, eta the supergranular diffusivity, tau an optional
+decay time and S the emerging bipolar regions.
+
+Scheme
+------
+* Longitude: the state is kept as real-FFT coefficients b_m(lat) (normalised so
+  that b_0 is the longitude average). Every Fourier mode evolves on its own, so
+  the axisymmetric model is exactly the m = 0 part of the 2-D model.
+* Rotation, longitudinal diffusion and decay act row by row and mode by mode:
+  they are applied exactly, as the factor exp(dt (-i m Omega - eta m^2 / (R^2
+  cos^2 lat) - 1/tau)). A rigid rotation therefore shifts a pattern exactly.
+* Latitude: conservative finite volumes on an equal-angle grid. The face flux
+  F = cos(lat) [v B / R - eta dB/dlat / R^2] uses the mean of the two adjacent
+  cells for B and their difference for dB/dlat (second order); F is zero at both
+  poles, so the total signed flux sum(B_j (sin lat_j+1/2 - sin lat_j-1/2)) is
+  conserved to round-off. This operator is the same real tridiagonal matrix for
+  every mode; it is stepped by Crank-Nicolson (second order, unconditionally
+  stable), factorised once (LAPACK ``dgttrf``) and applied to all modes at once
+  (``dgttrs``) each step.
+* The two parts are combined by Strang splitting (half a step of the exact row
+  factor, a Crank-Nicolson step, half a step of the row factor): second order in
+  time. Overall the scheme is second order in latitude and time and spectral in
+  longitude.
+* Bipolar regions are added (in spectral form) at the start of the step in which
+  they emerge; each carries zero net flux on the grid.
+
+For ensembles the same scheme runs for many axisymmetric members at once, each
+with its own diffusivity, flow speed and decay time (:class:`TransportEnsemble`);
+their matrices are factorised once and solved together.
+
+References
+----------
+DeVore, C. R., Sheeley, N. R., Jr., & Boris, J. P. 1984, Sol. Phys. 92, 1;
+Sheeley, N. R., Jr. 2005, Living Rev. Sol. Phys. 2, 5 (the surface flux transport model).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterable, Sequence
+
+import numpy as np
+from scipy.linalg import solve
+
+from ..errors import SettingsError
+from ..geometry import SOLAR_RADIUS_CM, regrid_conservative
+from ..maps import SynopticMap
+from ..measure import fill_polar_gaps, profile_measures
+from .profiles import flow_profile as _flow_profile
+from .profiles import rotation_profile
+from .sources import BipolarRegion, region_field
+
+__all__ = ["FluxTransport", "TransportEnsemble", "model_grid"]
+
+_R_M = SOLAR_RADIUS_CM / 100.0  # solar radius in metres (IAU 2015 nominal, astropy.constants)
+_DAY = 86400.0
+_YEAR = 365.25 * _DAY
+CARRINGTON_PERIOD_DAYS = 27.2753  # synodic Carrington rotation (common practice)
+# Factors, matrix entries and state values below this fraction of the largest are
+# set to zero: left alone, decaying high modes end as subnormal floating-point
+# numbers, a hundred times slower to compute with; at 1e-30 of the largest value
+# they are far below the round-off (1e-16) of the field itself.
+_NEGLIGIBLE = 1e-30
+
+
+class _Grid:
+    """Equal-angle finite-volume grid: cells, faces and their geometry."""
+
+    def __init__(self, nlat: int, nlon: int) -> None:
+        if int(nlat) < 4 or int(nlon) < 1:
+            raise SettingsError(f"grid {nlat} x {nlon}: need at least 4 latitude rows and 1 longitude column")
+        self.nlat, self.nlon = int(nlat), int(nlon)
+        self.lat_edges = np.linspace(-90.0, 90.0, self.nlat + 1)
+        self.lon_edges = np.linspace(0.0, 360.0, self.nlon + 1)
+        self.lat = 0.5 * (self.lat_edges[:-1] + self.lat_edges[1:])
+        self.lon = 0.5 * (self.lon_edges[:-1] + self.lon_edges[1:])
+        self.dlat = np.deg2rad(180.0 / self.nlat)
+        s = np.sin(np.deg2rad(self.lat_edges))
+        s[0], s[-1] = -1.0, 1.0
+        self.ds = np.diff(s)  # cell "area" in d(sin lat)
+        self.cos_face = np.cos(np.deg2rad(self.lat_edges))
+        self.cos_face[0] = self.cos_face[-1] = 0.0
+        self.cos_centre = np.cos(np.deg2rad(self.lat))
+        self.modes = np.arange(self.nlon // 2 + 1)
+
+    def solid_angle(self) -> np.ndarray:
+        return np.outer(self.ds, np.full(self.nlon, 2.0 * np.pi / self.nlon))
+
+
+def model_grid(nlat: int = 180, nlon: int = 360) -> tuple[np.ndarray, np.ndarray]:
+    """Latitude and longitude cell edges (degrees) of the transport model's grid."""
+    g = _Grid(nlat, nlon)
+    return g.lat_edges, g.lon_edges
+
+
+def _latitude_operator(grid: _Grid, eta: np.ndarray, flow_faces: np.ndarray):
+    """Tridiagonal bands (lower, diagonal, upper) of the latitudinal operator L, per member.
+
+    ``eta`` (m^2/s) has shape (k,) and ``flow_faces`` (m/s, northward at the faces)
+    shape (nlat + 1, k). Returns three arrays (nlat, k) with L b = d b / dt.
+    """
+    alpha = grid.cos_face[:, None] * flow_faces / (2.0 * _R_M)
+    beta = grid.cos_face[:, None] * eta[None, :] / (_R_M**2 * grid.dlat)
+    alpha[0] = alpha[-1] = 0.0
+    beta[0] = beta[-1] = 0.0
+    area = grid.ds[:, None]
+    lower = (alpha[:-1] + beta[:-1]) / area  # coefficient of b_{j-1}
+    diag = (alpha[:-1] - beta[:-1] - alpha[1:] - beta[1:]) / area
+    upper = (beta[1:] - alpha[1:]) / area  # coefficient of b_{j+1}
+    return lower, diag, upper
+
+
+def _initial_field(initial, grid: _Grid) -> np.ndarray:
+    """The initial radial field on the model grid, (nlat, nlon) in Gauss."""
+    if isinstance(initial, SynopticMap):
+        filled = fill_polar_gaps(initial, 60.0)
+        values = filled.values.astype(np.float64)
+        values[~np.isfinite(values)] = 0.0  # gaps outside the caps: no flux assumed
+        return regrid_conservative(values, initial.lat_edges, initial.lon_edges, grid.lat_edges, grid.lon_edges)
+    if callable(initial):
+        lat, lon = np.meshgrid(grid.lat, grid.lon, indexing="ij")
+        values = np.asarray(initial(lat, lon), dtype=np.float64)
+        return np.broadcast_to(values, (grid.nlat, grid.nlon)).copy()
+    values = np.asarray(initial, dtype=np.float64)
+    if values.shape == (grid.nlat,):
+        return np.repeat(values[:, None], grid.nlon, axis=1)
+    if values.shape != (grid.nlat, grid.nlon):
+        raise SettingsError(
+            f"initial array of shape {values.shape} does not match the model grid ({grid.nlat}, {grid.nlon})"
+        )
+    if not np.all(np.isfinite(values)):
+        raise SettingsError("initial array holds NaN or inf; fill it first (for example with fill_polar_gaps)")
+    return values.copy()
+
+
+def _sorted_sources(sources: Iterable[BipolarRegion] | None) -> list[BipolarRegion]:
+    regions = list(sources or [])
+    for r in regions:
+        if not isinstance(r, BipolarRegion):
+            raise SettingsError(f"sources must be BipolarRegion objects, got {type(r).__name__}")
+    return sorted(regions, key=lambda r: r.time)
+
+
+def _save_steps(nsteps: int, step_days: float, save_every_days: float) -> np.ndarray:
+    if save_every_days <= 0:
+        raise SettingsError(f"save_every_days={save_every_days} must be positive")
+    times = np.arange(0.0, nsteps * step_days + 0.5 * step_days, save_every_days)
+    steps = np.clip(np.rint(times / step_days).astype(int), 0, nsteps)
+    return np.unique(np.append(steps, nsteps))  # the final state is always saved
+
+
+class FluxTransport:
+    """Surface flux transport model of the radial field on an equal-angle grid.
+
+    Parameters
+    ----------
+    nlat, nlon : int
+        Grid rows (equal steps in latitude) and columns (equal steps in longitude).
+    diffusivity : float
+        Supergranular diffusivity eta, km^2/s (published values 250-600: 250 in
+        Cameron et al. 2010, ApJ 719, 264 and Jiang et al. 2014; 500-600 in Wang,
+        Nash & Sheeley 1989 and Wang et al. 2002).
+    flow_speed : float
+        Peak poleward speed of the default meridional flow, m/s.
+    flow_profile : callable, optional
+        f(lat_deg) -> northward speed in m/s; replaces the default profile
+        (van Ballegooijen, Cartledge & Priest 1998: v0 sin(2.4 lat) below 75 degrees).
+    rotation : "default", None, callable or (A, B, C)
+        Differential rotation relative to the Carrington frame ("default": Snodgrass
+        1983 magnetic features; a callable returns degrees per day).
+    decay_time : float or None
+        Exponential decay time of the field, years (5-10 in Schrijver, DeRosa &
+        Title 2002, ApJ 577, 1006); None for no decay.
+    axisymmetric : bool
+        Evolve only the longitude average (the m = 0 mode).
+    """
+
+    def __init__(
+        self,
+        nlat: int = 180,
+        nlon: int = 360,
+        diffusivity: float = 250.0,
+        flow_speed: float = 11.0,
+        flow_profile: Callable | None = None,
+        rotation="default",
+        decay_time: float | None = None,
+        axisymmetric: bool = False,
+    ) -> None:
+        self.grid = _Grid(nlat, nlon)
+        self.diffusivity = float(diffusivity)
+        if not self.diffusivity >= 0:
+            raise SettingsError(f"diffusivity={diffusivity} km^2/s must be zero or positive")
+        if decay_time is not None and not float(decay_time) > 0:
+            raise SettingsError(f"decay_time={decay_time} years must be positive or None")
+        self.flow_speed = float(flow_speed)
+        self.flow = _flow_profile(self.flow_speed, flow_profile)
+        self.rotation = rotation_profile(rotation)
+        self.decay_time = None if decay_time is None else float(decay_time)
+        self.axisymmetric = bool(axisymmetric)
+        self._flow_is_default = flow_profile is None
+        self._rotation_setting = rotation
+
+    # ------------------------------------------------------------------ pieces
+    @property
+    def lat(self) -> np.ndarray:
+        return self.grid.lat
+
+    @property
+    def lon(self) -> np.ndarray:
+        return self.grid.lon
+
+    def _modes(self) -> np.ndarray:
+        return self.grid.modes[:1] if self.axisymmetric else self.grid.modes
+
+    def _row_factor(self, dt: float) -> np.ndarray:
+        """exp(dt (-i m Omega - eta m^2/(R^2 cos^2) - 1/tau)), shape (nlat, nmodes)."""
+        g = self.grid
+        m = self._modes()[None, :].astype(np.float64)
+        rate = np.zeros((g.nlat, m.shape[1]), dtype=np.complex128)
+        if self.rotation is not None:
+            omega = np.deg2rad(np.asarray(self.rotation(g.lat), dtype=np.float64)) / _DAY  # rad/s
+            rate -= 1j * m * omega[:, None]
+        eta = self.diffusivity * 1e6
+        rate -= eta * m**2 / (_R_M**2 * g.cos_centre[:, None] ** 2)
+        if self.decay_time is not None:
+            rate -= 1.0 / (self.decay_time * _YEAR)
+        factor = np.exp(rate * dt)
+        factor[np.abs(factor) < _NEGLIGIBLE] = 0.0  # no subnormal numbers, which are very slow
+        return factor
+
+    def _crank_nicolson(self, dt: float) -> np.ndarray:
+        """The Crank-Nicolson step (I - dt/2 L)^-1 (I + dt/2 L) as one dense real matrix.
+
+        L is the same for every longitude mode, so the step for all modes at once is
+        one matrix product; the matrix is formed once per run (an LU solve).
+        """
+        g = self.grid
+        flow = np.asarray(self.flow(g.lat_edges), dtype=np.float64).reshape(-1, 1)
+        lower, diag, upper = (x[:, 0] for x in _latitude_operator(g, np.array([self.diffusivity * 1e6]), flow))
+        operator = np.diag(diag) + np.diag(lower[1:], -1) + np.diag(upper[:-1], 1)
+        eye = np.eye(g.nlat)
+        step = solve(eye - 0.5 * dt * operator, eye + 0.5 * dt * operator)
+        step[np.abs(step) < _NEGLIGIBLE * np.abs(step).max()] = 0.0
+        return step
+
+    def _spectral(self, field: np.ndarray) -> np.ndarray:
+        """Real-FFT coefficients normalised so that mode 0 is the longitude mean."""
+        coefficients = np.fft.rfft(field, axis=1) / self.grid.nlon
+        return coefficients[:, :1].copy() if self.axisymmetric else coefficients
+
+    def _field(self, state: np.ndarray) -> np.ndarray:
+        if self.axisymmetric:
+            return state[:, :1].real.copy()
+        return np.fft.irfft(state * self.grid.nlon, n=self.grid.nlon, axis=1)
+
+    def initial_field(self, initial) -> np.ndarray:
+        """The initial radial field on the model grid (nlat, nlon), Gauss."""
+        return _initial_field(initial, self.grid)
+
+    # ------------------------------------------------------------------ run
+    def run(
+        self,
+        initial,
+        years: float = 11.0,
+        step_days: float = 1.0,
+        sources: Sequence[BipolarRegion] | None = None,
+        save_every_days: float = CARRINGTON_PERIOD_DAYS,
+        cap_latitude: float = 60.0,
+        progress: Callable[[int, int], None] | None = None,
+    ):
+        """Evolve ``initial`` for ``years`` and return the saved states.
+
+        Parameters
+        ----------
+        initial : SynopticMap, ndarray or callable
+            A map (regridded onto the model grid conserving flux; missing polar
+            pixels filled as ``measure_caps(fill="profile")`` does, other gaps taken
+            as zero), an array on the model grid (nlat, nlon) or (nlat,), or
+            f(lat_deg, lon_deg) -> Gauss evaluated at the cell centres.
+        years, step_days : float
+            Length of the run and the time step.
+        sources : sequence of BipolarRegion, optional
+        save_every_days : float
+            Interval between saved states (default: one Carrington rotation).
+        cap_latitude : float
+            Cap boundary for the polar mean fields in the output, degrees.
+        progress : callable, optional
+            Called as ``progress(step, nsteps)`` now and then.
+
+        Returns
+        -------
+        xarray.Dataset
+            ``br`` (time, lat[, lon]) in G; ``axial_dipole``, ``north_mean_field``,
+            ``south_mean_field``, ``total_signed_flux``, ``total_unsigned_flux`` (time);
+            coordinates ``time`` (years from the start), ``lat``, ``lon`` (degrees, cell centres).
+        """
+        if not years > 0 or not step_days > 0:
+            raise SettingsError(f"years={years} and step_days={step_days} must be positive")
+        g = self.grid
+        dt = step_days * _DAY
+        nsteps = int(round(years * 365.25 / step_days))
+        saves = _save_steps(nsteps, step_days, save_every_days)
+        half = self._row_factor(0.5 * dt)
+        step_matrix = self._crank_nicolson(dt)
+        regions = _sorted_sources(sources)
+        solid = g.solid_angle()
+        next_region = 0
+        frames = []
+        report_every = max(1, nsteps // 100)
+        save_at = set(saves.tolist())
+        # The complex mode coefficients viewed as real numbers are columns that the
+        # latitude step treats alike: one real matrix product advances every mode.
+        state = np.ascontiguousarray(self._spectral(self.initial_field(initial)))
+        product = np.empty_like(state)
+        state_r, product_r = state.view(np.float64), product.view(np.float64)
+
+        for step in range(nsteps + 1):
+            if step in save_at:
+                frames.append(self._field(state))
+            if step == nsteps:
+                break
+            t_end = (step + 1) * step_days / 365.25
+            if next_region < len(regions) and regions[next_region].time < t_end:
+                deposit = np.zeros((g.nlat, g.nlon))
+                while next_region < len(regions) and regions[next_region].time < t_end:
+                    deposit += region_field(regions[next_region], g.lat, g.lon, solid)
+                    next_region += 1
+                state += self._spectral(deposit)
+            # Strang splitting: half row factor, Crank-Nicolson in latitude, half row factor
+            state *= half
+            np.matmul(step_matrix, state_r, out=product_r)
+            state, product = product, state
+            state_r, product_r = product_r, state_r
+            state *= half
+            magnitude = np.abs(state_r, out=product_r)
+            state_r[magnitude < _NEGLIGIBLE * magnitude.max()] = 0.0
+            if progress is not None and (step % report_every == 0):
+                progress(step, nsteps)
+        if progress is not None:
+            progress(nsteps, nsteps)
+        times = saves * step_days / 365.25
+        return self._dataset(np.stack(frames), times, cap_latitude, years, step_days, len(regions))
+
+    def _dataset(self, frames: np.ndarray, times: np.ndarray, cap_latitude: float, years, step_days, nregions):
+        import xarray as xr
+
+        g = self.grid
+        br = frames[:, :, 0] if self.axisymmetric else frames
+        values, attrs = _frame_measures(br, g.lat_edges, cap_latitude, self.axisymmetric)
+        series = {name: (("time",), values[name], attrs[name]) for name in values}
+        dims = ("time", "lat") if self.axisymmetric else ("time", "lat", "lon")
+        coords = {
+            "time": ("time", times, {"units": "yr", "long_name": "time from the start of the run"}),
+            "lat": ("lat", g.lat, {"units": "deg", "long_name": "latitude (cell centre)"}),
+        }
+        if not self.axisymmetric:
+            coords["lon"] = ("lon", g.lon, {"units": "deg", "long_name": "Carrington longitude (cell centre)"})
+        data_vars = {"br": (dims, br, {"units": "G", "long_name": "radial magnetic field"})}
+        data_vars.update(series)
+        attrs = {
+            "title": "surface flux transport run",
+            "diffusivity_km2_s": self.diffusivity,
+            "flow": f"default (van Ballegooijen et al. 1998), peak {self.flow_speed:g} m/s"
+            if self._flow_is_default else "user profile",
+            "rotation": str(self._rotation_setting) if not callable(self._rotation_setting) else "user profile",
+            "decay_time_yr": "none" if self.decay_time is None else self.decay_time,
+            "axisymmetric": int(self.axisymmetric),
+            "years": float(years),
+            "step_days": float(step_days),
+            "cap_deg": float(cap_latitude),
+            "regions": int(nregions),
+        }
+        return xr.Dataset(data_vars, coords=coords, attrs=attrs)
+
+
+def _frame_measures(frames: np.ndarray, lat_edges, cap_latitude: float, axisymmetric: bool):
+    """Polar mean fields, axial dipole and total fluxes of saved frames (..., lat) or (..., lat, lon).
+
+    The caps and the dipole come from :func:`polarflux.measure.profile_measures`,
+    the archive measures' own weights applied to the longitude averages.
+    """
+    from ..geometry import cell_areas
+
+    if axisymmetric:
+        profiles, full = frames, frames[..., None]
+    else:
+        profiles, full = frames.mean(axis=-1), frames
+    nlon = full.shape[-1]
+    values = profile_measures(profiles, lat_edges, cap_latitude)
+    areas = cell_areas(lat_edges, np.linspace(0.0, 360.0, nlon + 1))
+    values["total_signed_flux"] = np.einsum("...jk,jk->...", full, areas)
+    values["total_unsigned_flux"] = np.einsum("...jk,jk->...", np.abs(full), areas)
+    attrs = {
+        "axial_dipole": {"units": "G", "long_name": "axial dipole moment"},
+        "north_mean_field": {"units": "G", "long_name": f"mean radial field poleward of {cap_latitude:g} N"},
+        "south_mean_field": {"units": "G", "long_name": f"mean radial field poleward of {cap_latitude:g} S"},
+        "total_signed_flux": {"units": "Mx", "long_name": "total signed flux over the sphere"},
+        "total_unsigned_flux": {"units": "Mx", "long_name": "total unsigned flux over the sphere"},
+    }
+    return {name: values[name] for name in attrs}, attrs
+
+
+class TransportEnsemble:
+    """Many axisymmetric transport models at once, one per member, vectorised.
+
+    Parameters
+    ----------
+    nlat : int
+        Grid rows (equal steps in latitude).
+    diffusivity, flow_speed, decay_time : float or array-like
+        Per member (broadcast together): km^2/s, m/s (peak of the default flow or
+        scale of ``flow_profile``'s shape) and years (``np.inf`` or None for no decay).
+    flow_profile : callable, optional
+        f(lat_deg) -> northward speed in m/s for a peak of 1 m/s; scaled by
+        ``flow_speed`` per member. Default: van Ballegooijen et al. (1998) shape.
+
+    The scheme is that of :class:`FluxTransport` for the m = 0 mode.
+    """
+
+    def __init__(self, nlat: int = 180, diffusivity=250.0, flow_speed=11.0, decay_time=None,
+                 flow_profile: Callable | None = None) -> None:
+        self.grid = _Grid(nlat, 1)
+        decay = np.inf if decay_time is None else decay_time
+        eta, speed, tau = np.broadcast_arrays(
+            np.asarray(diffusivity, dtype=np.float64), np.asarray(flow_speed, dtype=np.float64),
+            np.asarray(decay, dtype=np.float64))
+        self.diffusivity, self.flow_speed, self.decay_time = (np.atleast_1d(x).ravel().copy() for x in (eta, speed, tau))
+        if np.any(self.diffusivity < 0) or np.any(self.decay_time <= 0):
+            raise SettingsError("ensemble diffusivities must be >= 0 and decay times > 0")
+        self.shape = _flow_profile(1.0, flow_profile)
+
+    @property
+    def members(self) -> int:
+        return self.diffusivity.size
+
+    def run(self, initial, years: float = 11.0, step_days: float = 1.0,
+            save_every_days: float = CARRINGTON_PERIOD_DAYS, cap_latitude: float = 60.0,
+            sources: Sequence[BipolarRegion] | None = None, nlon_sources: int = 360):
+        """Evolve every member from ``initial`` ((nlat,) shared, or (members, nlat), or callable f(lat)).
+
+        Returns an ``xarray.Dataset`` with ``br`` (member, time, lat) and the polar
+        mean fields and axial dipole (member, time).
+        """
+        import xarray as xr
+
+        g = self.grid
+        k = self.members
+        dt = step_days * _DAY
+        nsteps = int(round(years * 365.25 / step_days))
+        saves = _save_steps(nsteps, step_days, save_every_days)
+        if callable(initial):
+            initial = np.asarray(initial(g.lat), dtype=np.float64)
+        b = np.broadcast_to(np.asarray(initial, dtype=np.float64), (k, g.nlat)).T.copy()  # (nlat, k)
+        flow = np.asarray(self.shape(g.lat_edges), dtype=np.float64)[:, None] * self.flow_speed[None, :]
+        lower, diag, upper = _latitude_operator(g, self.diffusivity * 1e6, flow)
+        half = 0.5 * dt
+        decay = np.exp(-half / (self.decay_time * _YEAR))[None, :]
+        solve = _Thomas(-half * lower, 1.0 - half * diag, -half * upper)
+        regions = _sorted_sources(sources)
+        fine = _Grid(g.nlat, nlon_sources)
+        next_region = 0
+        frames = np.empty((len(saves), g.nlat, k))
+        saved = 0
+        save_at = set(saves.tolist())
+        for step in range(nsteps + 1):
+            if step in save_at:
+                frames[saved] = b
+                saved += 1
+            if step == nsteps:
+                break
+            t_end = (step + 1) * step_days / 365.25
+            while next_region < len(regions) and regions[next_region].time < t_end:
+                b += region_field(regions[next_region], fine.lat, fine.lon, fine.solid_angle()).mean(axis=1)[:, None]
+                next_region += 1
+            b *= decay
+            rhs = (1.0 + half * diag) * b
+            rhs[1:] += half * lower[1:] * b[:-1]
+            rhs[:-1] += half * upper[:-1] * b[1:]
+            b = solve(rhs)
+            b *= decay
+        frames = np.transpose(frames, (2, 0, 1))  # member, time, lat
+        times = saves * step_days / 365.25
+        values, attrs = _frame_measures(frames, g.lat_edges, cap_latitude, axisymmetric=True)
+        series = {name: (("member", "time"), values[name], attrs[name]) for name in values}
+        return xr.Dataset(
+            {"br": (("member", "time", "lat"), frames, {"units": "G", "long_name": "radial magnetic field"}),
+             "diffusivity": (("member",), self.diffusivity, {"units": "km2 s-1"}),
+             "flow_speed": (("member",), self.flow_speed, {"units": "m s-1"}),
+             "decay_time": (("member",), self.decay_time, {"units": "yr"}),
+             **series},
+            coords={"member": np.arange(k), "time": ("time", times, {"units": "yr"}),
+                    "lat": ("lat", g.lat, {"units": "deg"})},
+            attrs={"title": "axisymmetric surface flux transport ensemble", "cap_deg": float(cap_latitude),
+                   "step_days": float(step_days), "years": float(years)},
+        )
+
+
+class _Thomas:
+    """Tridiagonal solves for many systems at once (one per column), factorised once.
+
+    Bands have shape (n, k): ``lower[j]`` multiplies x[j-1], ``upper[j]`` x[j+1].
+    No pivoting: the Crank-Nicolson matrices here are diagonally dominant.
+    """
+
+    def __init__(self, lower: np.ndarray, diag: np.ndarray, upper: np.ndarray) -> None:
+        n = diag.shape[0]
+        self.lower = lower
+        self.c = np.empty_like(diag)
+        self.inv = np.empty_like(diag)
+        self.inv[0] = 1.0 / diag[0]
+        self.c[0] = upper[0] * self.inv[0]
+        for j in range(1, n):
+            self.inv[j] = 1.0 / (diag[j] - lower[j] * self.c[j - 1])
+            self.c[j] = upper[j] * self.inv[j]
+
+    def __call__(self, rhs: np.ndarray) -> np.ndarray:
+        n = rhs.shape[0]
+        x = np.empty_like(rhs)
+        x[0] = rhs[0] * self.inv[0]
+        lower, inv, c = self.lower, self.inv, self.c
+        for j in range(1, n):
+            x[j] = (rhs[j] - lower[j] * x[j - 1]) * inv[j]
+        for j in range(n - 2, -1, -1):
+            x[j] -= c[j] * x[j + 1]
+        return x
