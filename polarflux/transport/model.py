@@ -152,6 +152,14 @@ def _sorted_sources(sources: Iterable[BipolarRegion] | None) -> list[BipolarRegi
     return sorted(regions, key=lambda r: r.time)
 
 
+def _steps(years: float, step_days: float) -> tuple[int, float]:
+    """Number of steps and the step (days), adjusted so that whole steps end exactly at ``years``."""
+    if not years > 0 or not step_days > 0:
+        raise SettingsError(f"years={years} and step_days={step_days} must be positive")
+    nsteps = max(1, int(round(years * 365.25 / step_days)))
+    return nsteps, years * 365.25 / nsteps
+
+
 def _save_steps(nsteps: int, step_days: float, save_every_days: float) -> np.ndarray:
     if save_every_days <= 0:
         raise SettingsError(f"save_every_days={save_every_days} must be positive")
@@ -289,7 +297,8 @@ class FluxTransport:
             as zero), an array on the model grid (nlat, nlon) or (nlat,), or
             f(lat_deg, lon_deg) -> Gauss evaluated at the cell centres.
         years, step_days : float
-            Length of the run and the time step.
+            Length of the run and the time step; the step is adjusted slightly so
+            that a whole number of steps ends exactly at ``years``.
         sources : sequence of BipolarRegion, optional
         save_every_days : float
             Interval between saved states (default: one Carrington rotation).
@@ -305,11 +314,9 @@ class FluxTransport:
             ``south_mean_field``, ``total_signed_flux``, ``total_unsigned_flux`` (time);
             coordinates ``time`` (years from the start), ``lat``, ``lon`` (degrees, cell centres).
         """
-        if not years > 0 or not step_days > 0:
-            raise SettingsError(f"years={years} and step_days={step_days} must be positive")
         g = self.grid
+        nsteps, step_days = _steps(years, step_days)
         dt = step_days * _DAY
-        nsteps = int(round(years * 365.25 / step_days))
         saves = _save_steps(nsteps, step_days, save_every_days)
         half = self._row_factor(0.5 * dt)
         step_matrix = self._crank_nicolson(dt)
@@ -456,8 +463,8 @@ class TransportEnsemble:
 
         g = self.grid
         k = self.members
+        nsteps, step_days = _steps(years, step_days)
         dt = step_days * _DAY
-        nsteps = int(round(years * 365.25 / step_days))
         saves = _save_steps(nsteps, step_days, save_every_days)
         if callable(initial):
             initial = np.asarray(initial(g.lat), dtype=np.float64)
