@@ -38,6 +38,16 @@ def build_parser() -> argparse.ArgumentParser:
     measure.add_argument("--force", action="store_true", help="overwrite an existing output")
     measure.add_argument("--quiet", action="store_true", help="no progress bar and no summary line")
 
+    transport = commands.add_parser(
+        "transport",
+        help="run a surface flux transport model described by a TOML file",
+        description="Evolve the radial field with the surface flux transport model; the TOML keys "
+        "are listed in README.md.",
+    )
+    transport.add_argument("config", metavar="CONFIG.toml", help="model, run, initial state and regions")
+    transport.add_argument("--out", required=True, metavar="FILE.nc", help="output netCDF file")
+    transport.add_argument("--force", action="store_true", help="overwrite an existing output")
+
     demo = commands.add_parser(
         "demo",
         help="make a small invented map archive and measure it",
@@ -71,6 +81,8 @@ def main(argv: list[str] | None = None) -> int:
             return _measure(args, parser)
         if args.command == "demo":
             return _demo(args, parser)
+        if args.command == "transport":
+            return _transport(args, parser)
     except PolarfluxError as exc:
         print(f"polarflux: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -129,6 +141,36 @@ def _measure(args, parser) -> int:
         print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; record written to {out}",
               file=sys.stderr)
     return EXIT_OK if failed == 0 else EXIT_SOME_FAILED
+
+
+def _transport(args, parser) -> int:
+    from ._io import atomic_path, check_writable
+    from .transport.config import load_run
+
+    out = Path(args.out)
+    if out.suffix.lower() != ".nc":
+        parser.error(f"--out {out}: a transport run is written as netCDF (.nc)")
+    check_writable(out, args.force)
+    job = load_run(args.config)
+    progress = Progress(job.steps, label="transport")
+    last = [0]
+
+    def report(step: int, total: int) -> None:
+        for _ in range(step - last[0]):
+            progress.step()
+        last[0] = step
+
+    ds = job.run(progress=report)
+    progress.close()
+    ds.attrs["config"] = str(args.config)
+    with atomic_path(out, force=args.force) as tmp:
+        ds.to_netcdf(tmp, engine="netcdf4")
+    end = ds.isel(time=-1)
+    print(f"ran {ds.attrs['years']:g} years in {job.steps} steps with {len(job.regions)} regions; "
+          f"at the end: north {float(end.north_mean_field):.3f} G, south {float(end.south_mean_field):.3f} G, "
+          f"axial dipole {float(end.axial_dipole):.3f} G")
+    print(f"written to {out}")
+    return EXIT_OK
 
 
 def _prepare_demo_folder(folder: Path) -> None:
