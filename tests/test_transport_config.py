@@ -103,3 +103,14 @@ def test_bad_configs_name_the_file_and_the_key(tmp_path, text, message):
         load_run(path)
     assert main(["transport", str(path), "--out", str(tmp_path / "x.nc")]) == 2
     assert not (tmp_path / "x.nc").exists()
+
+
+def test_the_readme_config_example_uses_the_real_keys(tmp_path):
+    import re
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    block = re.search(r"```toml\n(.*?)```", readme, re.S).group(1)
+    block = block.replace('map = "cr2400.fits"', "dipole = 5.0").replace('field = "radial"', "")
+    job = load_run(write(tmp_path, block))
+    assert job.model.grid.nlat == 180 and job.model.decay_time == 5.0 and len(job.regions) == 1
