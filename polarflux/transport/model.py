@@ -61,7 +61,7 @@ from .profiles import flow_profile as _flow_profile
 from .profiles import rotation_profile
 from .sources import BipolarRegion, region_field
 
-__all__ = ["FluxTransport", "TransportEnsemble", "model_grid"]
+__all__ = ["FluxTransport", "Stepper", "TransportEnsemble", "model_grid"]
 
 _R_M = SOLAR_RADIUS_CM / 100.0  # solar radius in metres (IAU 2015 nominal, astropy.constants)
 _DAY = 86400.0
@@ -314,50 +314,36 @@ class FluxTransport:
             ``south_mean_field``, ``total_signed_flux``, ``total_unsigned_flux`` (time);
             coordinates ``time`` (years from the start), ``lat``, ``lon`` (degrees, cell centres).
         """
-        g = self.grid
         nsteps, step_days = _steps(years, step_days)
-        dt = step_days * _DAY
         saves = _save_steps(nsteps, step_days, save_every_days)
-        half = self._row_factor(0.5 * dt)
-        step_matrix = self._crank_nicolson(dt)
+        stepper = self.stepper(initial, step_days)
         regions = _sorted_sources(sources)
-        solid = g.solid_angle()
         next_region = 0
         frames = []
         report_every = max(1, nsteps // 100)
         save_at = set(saves.tolist())
-        # The complex mode coefficients viewed as real numbers are columns that the
-        # latitude step treats alike: one real matrix product advances every mode.
-        state = np.ascontiguousarray(self._spectral(self.initial_field(initial)))
-        product = np.empty_like(state)
-        state_r, product_r = state.view(np.float64), product.view(np.float64)
-
         for step in range(nsteps + 1):
             if step in save_at:
-                frames.append(self._field(state))
+                frames.append(stepper.field())
             if step == nsteps:
                 break
             t_end = (step + 1) * step_days / 365.25
-            if next_region < len(regions) and regions[next_region].time < t_end:
-                deposit = np.zeros((g.nlat, g.nlon))
-                while next_region < len(regions) and regions[next_region].time < t_end:
-                    deposit += region_field(regions[next_region], g.lat, g.lon, solid)
-                    next_region += 1
-                state += self._spectral(deposit)
-            # Strang splitting: half row factor, Crank-Nicolson in latitude, half row factor
-            state *= half
-            np.matmul(step_matrix, state_r, out=product_r)
-            state, product = product, state
-            state_r, product_r = product_r, state_r
-            state *= half
-            magnitude = np.abs(state_r, out=product_r)
-            state_r[magnitude < _NEGLIGIBLE * magnitude.max()] = 0.0
+            emerging = []
+            while next_region < len(regions) and regions[next_region].time < t_end:
+                emerging.append(regions[next_region])
+                next_region += 1
+            stepper.add_regions(emerging)
+            stepper.step()
             if progress is not None and (step % report_every == 0):
                 progress(step, nsteps)
         if progress is not None:
             progress(nsteps, nsteps)
         times = saves * step_days / 365.25
         return self._dataset(np.stack(frames), times, cap_latitude, years, step_days, len(regions))
+
+    def stepper(self, initial, step_days: float = 1.0) -> Stepper:
+        """A :class:`Stepper` holding the model state, for runs driven step by step."""
+        return Stepper(self, initial, step_days)
 
     def _dataset(self, frames: np.ndarray, times: np.ndarray, cap_latitude: float, years, step_days, nregions):
         import xarray as xr
@@ -389,6 +375,64 @@ class FluxTransport:
             "regions": int(nregions),
         }
         return xr.Dataset(data_vars, coords=coords, attrs=attrs)
+
+
+class Stepper:
+    """The state of a :class:`FluxTransport` model, advanced one fixed step at a time.
+
+    For callers that decide what emerges as the run goes (the synthetic scenario)
+    or that sample the field at their own times. :meth:`FluxTransport.run` is
+    built on it.
+    """
+
+    def __init__(self, model: FluxTransport, initial, step_days: float = 1.0) -> None:
+        if not step_days > 0:
+            raise SettingsError(f"step_days={step_days} must be positive")
+        self.model = model
+        self.step_days = float(step_days)
+        self.steps_done = 0
+        dt = self.step_days * _DAY
+        self._half = model._row_factor(0.5 * dt)
+        self._matrix = model._crank_nicolson(dt)
+        self._solid = model.grid.solid_angle()
+        # The complex mode coefficients viewed as real numbers are columns that the
+        # latitude step treats alike: one real matrix product advances every mode.
+        self._state = np.ascontiguousarray(model._spectral(model.initial_field(initial)))
+        self._other = np.empty_like(self._state)
+
+    @property
+    def time(self) -> float:
+        """Years since the start."""
+        return self.steps_done * self.step_days / 365.25
+
+    def field(self) -> np.ndarray:
+        """The radial field now, on the model grid: (nlat, nlon), or (nlat, 1) if axisymmetric."""
+        return self.model._field(self._state)
+
+    def add_regions(self, regions: Iterable[BipolarRegion]) -> None:
+        """Deposit bipolar regions now (each adds zero net flux)."""
+        regions = list(regions)
+        if not regions:
+            return
+        g = self.model.grid
+        deposit = np.zeros((g.nlat, g.nlon))
+        for region in regions:
+            deposit += region_field(region, g.lat, g.lon, self._solid)
+        self._state += self.model._spectral(deposit)
+
+    def step(self, count: int = 1) -> None:
+        """Advance ``count`` steps (Strang splitting: half row factor, Crank-Nicolson, half row factor)."""
+        state, other, half, matrix = self._state, self._other, self._half, self._matrix
+        for _ in range(int(count)):
+            state *= half
+            np.matmul(matrix, state.view(np.float64), out=other.view(np.float64))
+            state, other = other, state
+            state *= half
+            flat = state.view(np.float64)
+            magnitude = np.abs(flat, out=other.view(np.float64))
+            flat[magnitude < _NEGLIGIBLE * magnitude.max()] = 0.0
+        self._state, self._other = state, other
+        self.steps_done += int(count)
 
 
 def _frame_measures(frames: np.ndarray, lat_edges, cap_latitude: float, axisymmetric: bool):
