@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import os
-import shutil
 import sys
 from pathlib import Path
 
@@ -48,18 +46,38 @@ def build_parser() -> argparse.ArgumentParser:
     transport.add_argument("--out", required=True, metavar="FILE.nc", help="output netCDF file")
     transport.add_argument("--force", action="store_true", help="overwrite an existing output")
 
+    synth = commands.add_parser(
+        "synth",
+        help="write the invented multi-cycle scenario: synoptic maps plus their truth",
+        description="Generate the invented scenario (no real data): an archive of synoptic maps from two "
+        "invented instruments, with truth.json, truth_series.csv, regions.csv and sunspots.csv beside it.",
+    )
+    synth.add_argument("--out", required=True, metavar="DIR", help="folder for the scenario")
+    _add_scenario_options(synth)
+    synth.add_argument("--force", action="store_true", help="replace a scenario already in DIR")
+
     demo = commands.add_parser(
         "demo",
-        help="make a small invented map archive and measure it",
-        description="Write an invented archive of synoptic maps (no real data), measure it, "
-        "and save the record and a figure.",
+        help="generate (or reuse) the invented scenario and measure its whole archive",
+        description="Generate the invented scenario (or reuse it), measure every map, and save the record "
+        "and a figure of the polar fields.",
     )
     demo.add_argument("--out", default="polarflux-demo", metavar="DIR",
-                      help="folder for the demo maps and results (default: %(default)s)")
-    demo.add_argument("--maps", type=int, default=27, metavar="N", help="rotations to make (default: 27)")
-    demo.add_argument("--seed", type=int, default=2041, help="random seed (default: %(default)s)")
+                      help="folder for the scenario and results (default: %(default)s)")
+    _add_scenario_options(demo)
     _add_measure_options(demo)
     return parser
+
+
+def _add_scenario_options(parser: argparse.ArgumentParser) -> None:
+    from .synthetic import RESOLUTIONS
+
+    parser.add_argument("--seed", type=int, default=2051, help="random seed (default: %(default)s)")
+    parser.add_argument("--cycles", type=int, default=4, metavar="K", help="solar cycles (default: 4)")
+    parser.add_argument("--resolution", choices=tuple(RESOLUTIONS), default="standard",
+                        help="model and map grids (default: standard: model 1 degree, maps 2 and 1 degree)")
+    parser.add_argument("--years", type=float, default=None, metavar="Y",
+                        help="stop the scenario after Y years (default: when the last cycle ends)")
 
 
 def _add_measure_options(parser: argparse.ArgumentParser) -> None:
@@ -83,6 +101,8 @@ def main(argv: list[str] | None = None) -> int:
             return _demo(args, parser)
         if args.command == "transport":
             return _transport(args, parser)
+        if args.command == "synth":
+            return _synth(args, parser)
     except PolarfluxError as exc:
         print(f"polarflux: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -173,67 +193,113 @@ def _transport(args, parser) -> int:
     return EXIT_OK
 
 
+def _scenario_settings(args, parser):
+    from .synthetic import settings_for
+
+    if args.cycles < 1:
+        parser.error("--cycles must be at least 1")
+    if args.years is not None and not args.years > 0:
+        parser.error("--years must be positive")
+    return settings_for(args.resolution, seed=args.seed, cycles=args.cycles, duration_years=args.years)
+
+
+def _generate(folder: Path, settings, force: bool) -> dict:
+    from .synthetic import write_scenario
+
+    progress = Progress(1, label="generating scenario")
+
+    def report(done: int, total: int) -> None:
+        progress.total = total
+        progress.step()
+
+    truth = write_scenario(folder, settings, progress=report, force=force)
+    progress.close()
+    return truth
+
+
+def _synth(args, parser) -> int:
+    settings = _scenario_settings(args, parser)
+    truth = _generate(Path(args.out), settings, args.force)
+    print(f"wrote {len(truth['maps'])} invented synoptic maps ({truth['years']:.1f} years, "
+          f"{len(truth['cycles'])} cycles, seed {settings.seed}) to {Path(args.out) / 'maps'}")
+    print(f"truth: {Path(args.out) / 'truth.json'}; sunspot numbers: {Path(args.out) / 'sunspots.csv'}")
+    return EXIT_OK
+
+
 def _prepare_demo_folder(folder: Path) -> None:
-    if folder.exists():
-        if not (folder / _DEMO_MARKER).exists():
-            if folder.is_dir() and not any(folder.iterdir()):
-                pass
-            else:
-                raise PolarfluxError(
-                    f"{folder}: exists and is not a polarflux demo folder; choose another with --out DIR"
-                )
-        else:
-            shutil.rmtree(folder)
+    if folder.exists() and not (folder / _DEMO_MARKER).exists():
+        if not folder.is_dir() or any(folder.iterdir()):
+            raise PolarfluxError(
+                f"{folder}: exists and is not a polarflux demo folder; choose another with --out DIR"
+            )
     folder.mkdir(parents=True, exist_ok=True)
-    (folder / _DEMO_MARKER).write_text("made by polarflux demo; the demo replaces this folder on each run\n")
+    (folder / _DEMO_MARKER).write_text("made by polarflux demo; the demo rewrites what is in this folder\n")
 
 
 def _demo(args, parser) -> int:
-    from .demo import write_demo_archive
+    import json
+
+    import numpy as np
+
     from .plots import plot_polar_fields
-    from .record import write_record
+    from .record import expand_inputs, write_record
 
     _check_options(args, parser)
-    if args.maps < 1:
-        parser.error("--maps must be at least 1")
+    settings = _scenario_settings(args, parser)
     folder = Path(args.out)
     _prepare_demo_folder(folder)
-    maps = folder / "maps"
-    progress = Progress(args.maps, label="writing demo maps")
-    paths = write_demo_archive(maps, n_maps=args.maps, seed=args.seed,
-                               progress=lambda path, error: progress.step())
-    progress.close()
-    print(f"wrote {len(paths)} invented synoptic maps (seed {args.seed}) to {maps}")
-    ds, rows = _run_measurement([os.fspath(p) for p in paths], [], args, "measuring")
+    scenario = folder / "scenario"
+    saved = scenario / "scenario.toml"
+    if saved.exists() and (scenario / "truth.json").exists() and saved.read_text() == settings.to_toml():
+        truth = json.loads((scenario / "truth.json").read_text())
+        print(f"reusing the invented scenario in {scenario} (same settings)")
+    else:
+        truth = _generate(scenario, settings, force=True)
+        print(f"generated the invented scenario in {scenario}: {len(truth['maps'])} maps, "
+              f"{truth['years']:.1f} years, seed {settings.seed} (no real data)")
+    files, problems = expand_inputs([scenario / "maps"])
+    ds, rows = _run_measurement(files, problems, args, "measuring")
     csv_path = write_record(ds, folder / "polar_record.csv", force=True)
     nc_path = write_record(ds, folder / "polar_record.nc", force=True)
-    print(_table(ds))
-    fig = plot_polar_fields(ds, caption=f"polarflux demo: invented maps in {maps} (seed {args.seed})")
+    series = _truth_series(scenario / "truth_series.csv")
+    fig = plot_polar_fields(ds, truth=series,
+                            caption=f"polarflux demo: invented scenario in {scenario} (seed {settings.seed}); "
+                            "thin black lines: noise-free truth")
     figure = folder / "polar_fields.png"
     fig.savefig(figure, dpi=120)
-    print(f"measured {len(rows)} of {len(paths)} maps, {ds.attrs['failed_count']} failed; "
+    print(_cycles_table(truth))
+    print(f"measured {len(rows)} of {len(files)} maps, {ds.attrs['failed_count']} failed; "
           f"cap poleward of {args.cap:g} deg, fill={args.fill}")
-    print(f"record: {csv_path} and {nc_path}; figure: {figure}")
+    last = ds.isel(time=-1)
+    print(f"latest map ({np.datetime_as_string(last['time'].values, unit='D')}, {last['instrument'].values}): "
+          f"north {float(last['mean_field'].sel(hemisphere='north')):.2f} G, "
+          f"south {float(last['mean_field'].sel(hemisphere='south')):.2f} G, "
+          f"axial dipole {float(last['axial_dipole']):.2f} G")
+    print(f"outputs: record {csv_path} and {nc_path}; figure {figure}; truth {scenario / 'truth.json'}")
     return EXIT_OK if ds.attrs["failed_count"] == 0 else EXIT_SOME_FAILED
 
 
-def _table(ds) -> str:
+def _truth_series(path: Path) -> dict:
+    import csv
+
     import numpy as np
 
-    head = (f"{'CR':>5}  {'date':10}  {'north G':>8} {'cover':>5}  {'south G':>8} {'cover':>5}  "
-            f"{'dipole G':>8}")
-    lines = [head, "-" * len(head)]
-    for i in range(ds.sizes["time"]):
-        n = ds.isel(time=i)
-        date = np.datetime_as_string(n["time"].values, unit="D")
-        lines.append(
-            f"{int(n['carrington_rotation']):>5}  {date:10}  "
-            f"{float(n['mean_field'].sel(hemisphere='north')):>8.3f} "
-            f"{float(n['coverage'].sel(hemisphere='north')):>5.2f}  "
-            f"{float(n['mean_field'].sel(hemisphere='south')):>8.3f} "
-            f"{float(n['coverage'].sel(hemisphere='south')):>5.2f}  "
-            f"{float(n['axial_dipole']):>8.3f}"
-        )
+    with open(path, newline="", encoding="utf-8") as handle:
+        rows = list(csv.DictReader(handle))
+    return {
+        "time": np.array([np.datetime64(r["time"][:23]) for r in rows]),
+        "north": np.array([float(r["north_mean_field_g"]) for r in rows]),
+        "south": np.array([float(r["south_mean_field_g"]) for r in rows]),
+    }
+
+
+def _cycles_table(truth: dict) -> str:
+    head = f"{'cycle':>5} {'start':>7} {'max':>7} {'amplitude':>9} {'dipole at start':>15}  (years from start; truth)"
+    lines = [head]
+    for c in truth["cycles"]:
+        peak = "-" if c["maximum_years"] is None else f"{c['maximum_years']:.2f}"
+        lines.append(f"{c['cycle']:>5} {c['start_years']:>7.2f} {peak:>7} {c['amplitude']:>9.1f} "
+                     f"{c['precursor_dipole_g']:>13.2f} G")
     return "\n".join(lines)
 
 

@@ -6,16 +6,29 @@ import numpy as np
 
 __all__ = ["plot_polar_fields", "HEMISPHERE_STYLE"]
 
-#: Line colours and markers per hemisphere: a blue and an orange that stay apart for
-#: colour-blind readers, with different markers and line styles for grey-scale print.
+#: Line colours per hemisphere: a blue and an orange that stay apart for colour-blind
+#: readers; line styles and markers keep them apart in grey-scale print too.
 HEMISPHERE_STYLE = {
-    "north": {"color": "#1f5fa6", "marker": "^", "linestyle": "-"},
-    "south": {"color": "#c45a12", "marker": "v", "linestyle": "--"},
+    "north": {"color": "#1f5fa6", "linestyle": "-"},
+    "south": {"color": "#c45a12", "linestyle": "--"},
 }
+_INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v")
 
 
-def plot_polar_fields(ds, ax=None, caption: str | None = None):
-    """Mean polar-cap field of both hemispheres against time, with the axial dipole.
+def _new_axes(ax, size=(9, 4.5)):
+    import matplotlib
+
+    if ax is not None:
+        return ax.figure, ax
+    matplotlib.use("Agg", force=False)
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=size, layout="constrained")
+    return fig, ax
+
+
+def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
+    """Mean polar-cap field of both hemispheres against time, per instrument, with the axial dipole.
 
     Parameters
     ----------
@@ -25,27 +38,32 @@ def plot_polar_fields(ds, ax=None, caption: str | None = None):
         Draw into this Axes; a new Figure is made otherwise.
     caption : str, optional
         Small text under the axes naming the source of the data.
+    truth : mapping, optional
+        ``{"time": datetime64 array, "north": ..., "south": ...}``: a reference
+        (for example the noise-free truth of a synthetic scenario) drawn as thin lines.
     """
-    import matplotlib
-
-    if ax is None:
-        matplotlib.use("Agg", force=False)
-        import matplotlib.pyplot as plt
-
-        fig, ax = plt.subplots(figsize=(8, 4.2), layout="constrained")
-    else:
-        fig = ax.figure
+    fig, ax = _new_axes(ax)
     times = ds["time"].values
     cap = float(ds.attrs.get("cap_deg", np.nan))
+    instruments = list(dict.fromkeys(str(x) for x in ds["instrument"].values)) or [""]
     for hemisphere, style in HEMISPHERE_STYLE.items():
         values = ds["mean_field"].sel(hemisphere=hemisphere).values
-        ax.plot(times, values, label=f"{hemisphere} cap (poleward of {cap:g}°)", markersize=4, **style)
-    ax.plot(times, ds["axial_dipole"].values, color="0.35", linestyle=":", label="axial dipole")
+        for k, name in enumerate(instruments):
+            pick = np.array([str(x) == name for x in ds["instrument"].values]) if name else slice(None)
+            label = f"{hemisphere} cap (poleward of {cap:g}°)" + (f", {name}" if len(instruments) > 1 else "")
+            ax.plot(times[pick], values[pick], marker=_INSTRUMENT_MARKERS[k % len(_INSTRUMENT_MARKERS)],
+                    markersize=2.5, linewidth=0.8, label=label, **style)
+        if truth is not None:
+            ax.plot(truth["time"], truth[hemisphere], color="black", linewidth=0.6,
+                    linestyle=style["linestyle"], alpha=0.7)
+    ax.plot(times, ds["axial_dipole"].values, color="0.35", linestyle=":", linewidth=1.0, label="axial dipole")
+    if truth is not None:
+        ax.plot([], [], color="black", linewidth=0.6, label="truth (noise-free)")
     ax.axhline(0.0, color="0.6", linewidth=0.8)
     ax.set_xlabel("time (UTC)")
     ax.set_ylabel("mean radial field (G)")
     ax.set_title("Polar-cap mean field")
-    ax.legend(loc="best", fontsize="small")
+    ax.legend(loc="best", fontsize="x-small", ncol=2)
     if caption:
         _add_caption(fig, caption)
     return fig

@@ -58,3 +58,14 @@ def index_data():
         return (i + 1000.0 * j).astype(np.float32)
 
     return make
+
+
+@pytest.fixture(scope="session")
+def tiny_scenario(tmp_path_factory):
+    """A half-year of the invented scenario at low resolution: six maps of one instrument."""
+    from polarflux.synthetic import settings_for, write_scenario
+
+    folder = tmp_path_factory.mktemp("tiny_scenario")
+    settings = settings_for("low", cycles=1, duration_years=0.5, seed=7, missing_rotations=1)
+    truth = write_scenario(folder, settings)
+    return folder, truth

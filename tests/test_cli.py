@@ -12,25 +12,22 @@ from pathlib import Path
 import pytest
 
 from polarflux.cli import main
-from polarflux.demo import write_demo_archive
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
 @pytest.fixture(scope="module")
-def maps(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("cli") / "maps"
-    write_demo_archive(folder, n_maps=4, seed=3, nlat=90, nlon=180)
-    return folder
+def maps(tiny_scenario):
+    return tiny_scenario[0] / "maps"
 
 
 def test_measure_folder_to_csv(maps, tmp_path, capsys):
     out = tmp_path / "record.csv"
     assert main(["measure", str(maps), "--out", str(out)]) == 0
     rows = list(csv.DictReader(open(out, newline="")))
-    assert len(rows) == 4 and rows[0]["cap_deg"] == "60.0"
+    assert len(rows) == 6 and rows[0]["cap_deg"] == "60.0"
     err = capsys.readouterr().err
-    assert "measured 4 of 4 maps, 0 failed" in err
+    assert "measured 6 of 6 maps, 0 failed" in err
     assert "\r" not in err  # no progress bar when stderr is not a terminal
 
 
@@ -42,11 +39,11 @@ def test_measure_reports_bad_files_and_goes_on(maps, tmp_path, capsys):
     err = capsys.readouterr().err
     assert status == 1
     assert re.search(r"^polarflux: .*bad.fits: not a readable FITS file", err, re.M)
-    assert "measured 4 of 5 maps, 1 failed" in err
+    assert "measured 6 of 7 maps, 1 failed" in err
     import xarray as xr
 
     with xr.open_dataset(out) as ds:
-        assert ds.sizes["time"] == 4 and ds.attrs["cap_deg"] == 55.0
+        assert ds.sizes["time"] == 6 and ds.attrs["cap_deg"] == 55.0
 
 
 def test_existing_output_is_not_overwritten_without_force(maps, tmp_path, capsys):
@@ -80,20 +77,33 @@ def test_no_inputs_found_exits_2(tmp_path):
 
 def test_demo_writes_record_and_figure(tmp_path, capsys):
     out = tmp_path / "demo"
-    assert main(["demo", "--out", str(out), "--maps", "5"]) == 0
+    small = ["--resolution", "low", "--cycles", "1", "--years", "0.6"]
+    assert main(["demo", "--out", str(out), *small]) == 0
     text = capsys.readouterr().out
-    assert "measured 5 of 5 maps, 0 failed" in text
+    assert re.search(r"measured (\d+) of \1 maps, 0 failed", text)
+    assert "generated the invented scenario" in text and "outputs:" in text
     assert (out / "polar_record.csv").exists() and (out / "polar_record.nc").exists()
     assert (out / "polar_fields.png").stat().st_size > 10_000
-    assert len(list((out / "maps").glob("*.fits"))) == 5
-    # a second run replaces its own folder; a foreign folder is refused
-    assert main(["demo", "--out", str(out), "--maps", "3"]) == 0
-    assert len(list((out / "maps").glob("*.fits"))) == 3
+    assert (out / "scenario" / "truth.json").exists()
+    # a second run with the same settings reuses the scenario; a foreign folder is refused
+    assert main(["demo", "--out", str(out), *small]) == 0
+    assert "reusing the invented scenario" in capsys.readouterr().out
     foreign = tmp_path / "mine"
     foreign.mkdir()
     (foreign / "thesis.tex").write_text("x")
-    assert main(["demo", "--out", str(foreign)]) == 2
+    assert main(["demo", "--out", str(foreign), *small]) == 2
     assert (foreign / "thesis.tex").exists()
+
+
+def test_synth_writes_a_scenario_and_refuses_to_overwrite(tmp_path, capsys):
+    out = tmp_path / "scen"
+    args = ["synth", "--out", str(out), "--resolution", "low", "--cycles", "1", "--years", "0.3", "--seed", "3"]
+    assert main(args) == 0
+    assert "invented synoptic maps" in capsys.readouterr().out
+    for name in ("truth.json", "truth_series.csv", "regions.csv", "sunspots.csv", "scenario.toml"):
+        assert (out / name).exists()
+    assert main(args) == 2
+    assert main([*args, "--force"]) == 0
 
 
 def test_python_dash_m_runs_the_command():
@@ -125,4 +135,5 @@ def test_readme_demo_command_runs(tmp_path):
     env["PATH"] = bindir + os.pathsep + env.get("PATH", "")
     done = subprocess.run(demo[0], shell=True, cwd=tmp_path, capture_output=True, text=True, env=env)
     assert done.returncode == 0, done.stderr
-    assert "measured 27 of 27 maps, 0 failed" in done.stdout
+    assert re.search(r"measured (\d+) of \1 maps, 0 failed", done.stdout)
+    assert (tmp_path / "polarflux-demo" / "polar_fields.png").exists()

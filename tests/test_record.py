@@ -8,7 +8,6 @@ import numpy as np
 import pytest
 
 import polarflux as pf
-from polarflux.demo import write_demo_archive
 from polarflux.record import CSV_COLUMNS, expand_inputs, measure_file
 
 DESIGN_COLUMNS = (
@@ -19,9 +18,10 @@ DESIGN_COLUMNS = (
 
 
 @pytest.fixture(scope="module")
-def archive(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("archive")
-    paths = write_demo_archive(folder / "maps", n_maps=6, seed=7, nlat=90, nlon=180)
+def archive(tiny_scenario):
+    folder, truth = tiny_scenario
+    paths = sorted((folder / "maps").rglob("*.fits"))
+    assert len(paths) == 6
     return folder, paths
 
 
@@ -90,7 +90,7 @@ def test_csv_and_netcdf_round_trip(archive, tmp_path):
 
 def test_expand_inputs_folders_patterns_and_missing(archive, tmp_path):
     folder, paths = archive
-    files, problems = expand_inputs([folder / "maps", str(folder / "maps" / "*.fits"), tmp_path / "none"])
+    files, problems = expand_inputs([folder / "maps", str(folder / "maps" / "*" / "*.fits"), tmp_path / "none"])
     assert files == [str(p) for p in paths]  # duplicates removed, stable order
     assert len(problems) == 1 and "none" in str(problems[0])
 

@@ -98,8 +98,9 @@ def region_field(
 ) -> np.ndarray:
     """Radial field (G) of one region on a grid; its net flux is zero to round-off.
 
-    Each polarity is a Gaussian patch normalised on the grid itself to carry
-    exactly +/- ``flux``, so the deposit conserves the total signed flux.
+    Each polarity is a Gaussian patch, computed within six widths of its centre
+    and normalised on the grid itself to carry exactly +/- ``flux``, so the
+    deposit conserves the total signed flux.
     ``cell_solid_angle`` is the solid angle of each cell (sr), shape (nlat, nlon).
     """
     spacing = float(np.min(np.diff(lat_c))) if lat_c.size > 1 else 180.0
@@ -107,8 +108,13 @@ def region_field(
     leading, following = region.polarity_centres()
     field = np.zeros(cell_solid_angle.shape)
     radius2 = SOLAR_RADIUS_CM**2
+    reach = 6.0 * width + spacing  # beyond 6 widths the Gaussian is below 1e-7 of its peak
     for centre, flux in ((leading, region.flux), (following, -region.flux)):
-        patch = _patch(lat_c, lon_c, centre, width)
-        weight = float(np.sum(patch * cell_solid_angle)) * radius2
-        field += patch * (flux / weight)
+        rows = np.flatnonzero(np.abs(lat_c - centre[0]) <= reach)
+        if rows.size == 0:
+            rows = np.array([int(np.argmin(np.abs(lat_c - centre[0])))])
+        band = slice(int(rows[0]), int(rows[-1]) + 1)
+        patch = _patch(lat_c[band], lon_c, centre, width)
+        weight = float(np.sum(patch * cell_solid_angle[band])) * radius2
+        field[band] += patch * (flux / weight)
     return field
