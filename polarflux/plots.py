@@ -15,7 +15,7 @@ HEMISPHERE_STYLE = {
 _INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v")
 
 
-def _new_axes(ax, size=(9, 4.5)):
+def _new_axes(ax, size=(11, 4.8)):
     import matplotlib
 
     if ax is not None:
@@ -63,7 +63,7 @@ def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
     ax.set_xlabel("time (UTC)")
     ax.set_ylabel("mean radial field (G)")
     ax.set_title("Polar-cap mean field")
-    ax.legend(loc="best", fontsize="x-small", ncol=2)
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
     if caption:
         _add_caption(fig, caption)
     return fig

@@ -119,7 +119,7 @@ class ScenarioSettings:
         plain = {k: v for k, v in asdict(self).items() if k != "instruments"}
         for key, value in plain.items():
             if value is None:
-                lines.append(f"# {key} = none")
+                lines.append(f'{key} = "none"')
             else:
                 lines.append(f"{key} = {json.dumps(value)}")
         for inst in self.instruments:
@@ -139,6 +139,9 @@ class ScenarioSettings:
             raise SettingsError(f"{path}: unknown scenario setting(s) {', '.join(unknown)}")
         if "instruments" in data:
             data["instruments"] = tuple(Instrument(**i) for i in data["instruments"])
+        for key in ("duration_years", "decay_time"):
+            if data.get(key) == "none":
+                data[key] = None
         return cls(**data)
 
 
