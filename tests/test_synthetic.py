@@ -202,3 +202,19 @@ def test_settings_round_trip_through_toml(tmp_path):
         path = tmp_path / "s.toml"
         path.write_text(settings.to_toml())
         assert ScenarioSettings.from_toml(path) == settings
+
+
+def test_committed_sample_is_the_default_scenario():
+    from pathlib import Path
+
+    folder = Path(__file__).resolve().parents[1] / "synthetic_maps"
+    assert (folder / "scenario.toml").read_text() == settings_for("standard").to_toml()
+    truth = json.loads((folder / "truth.json").read_text())
+    maps = sorted((folder / "maps").rglob("*.fits"))
+    assert len(maps) == 4
+    for path in maps:
+        m = pf.read_map(path)
+        assert str(path.relative_to(folder)) in truth["maps"]
+        assert np.isfinite(m.values).mean() > 0.8
+    total = sum(p.stat().st_size for p in folder.rglob("*") if p.is_file())
+    assert total < 3_000_000  # a few MB at most
