@@ -267,13 +267,7 @@ def _advance(stepper, regions: list[BipolarRegion], until_years: float, start_in
     index = start_index
     step_years = stepper.step_days / 365.25
     while stepper.time + 0.5 * step_years < until_years:
-        t_end = stepper.time + step_years
-        emerging = []
-        while index < len(regions) and regions[index].time < t_end:
-            emerging.append(regions[index])
-            index += 1
-        stepper.add_regions(emerging)
-        stepper.step()
+        index = stepper.step_with_regions(regions, index)
     return index
 
 

@@ -327,13 +327,7 @@ class FluxTransport:
                 frames.append(stepper.field())
             if step == nsteps:
                 break
-            t_end = (step + 1) * step_days / 365.25
-            emerging = []
-            while next_region < len(regions) and regions[next_region].time < t_end:
-                emerging.append(regions[next_region])
-                next_region += 1
-            stepper.add_regions(emerging)
-            stepper.step()
+            next_region = stepper.step_with_regions(regions, next_region)
             if progress is not None and (step % report_every == 0):
                 progress(step, nsteps)
         if progress is not None:
@@ -419,6 +413,19 @@ class Stepper:
         for region in regions:
             deposit += region_field(region, g.lat, g.lon, self._solid)
         self._state += self.model._spectral(deposit)
+
+    def step_with_regions(self, regions: Sequence[BipolarRegion], index: int = 0) -> int:
+        """Deposit ``regions[index:]`` that emerge before this step ends, take the step, return the next index.
+
+        ``regions`` must be sorted by time.
+        """
+        t_end = (self.steps_done + 1) * self.step_days / 365.25
+        start = index
+        while index < len(regions) and regions[index].time < t_end:
+            index += 1
+        self.add_regions(regions[start:index])
+        self.step()
+        return index
 
     def step(self, count: int = 1) -> None:
         """Advance ``count`` steps (Strang splitting: half row factor, Crank-Nicolson, half row factor)."""
