@@ -61,7 +61,7 @@ from .maps import SynopticMap, quiet_time_warnings, write_map
 from .measure import profile_measures
 from .transport import BipolarRegion, FluxTransport, joy_tilt
 
-__all__ = ["Instrument", "ScenarioSettings", "write_scenario", "cycle_shape", "NETWORK"]
+__all__ = ["Instrument", "ScenarioSettings", "write_scenario", "settings_for", "cycle_shape", "NETWORK", "RESOLUTIONS"]
 
 NETWORK = "Meridian Synoptic Network (invented)"
 _HWR_C = 0.71
@@ -307,13 +307,13 @@ def write_scenario(out: str | os.PathLike, settings: ScenarioSettings | None = N
     ``progress(done, total)`` is called once per rotation. An existing ``truth.json``
     is not overwritten unless ``force``.
     """
+    with quiet_time_warnings():
+        return _write_scenario(Path(out), settings or ScenarioSettings(), progress, force)
+
+
+def _write_scenario(out: Path, settings: ScenarioSettings, progress, force: bool) -> dict:
     from sunpy.coordinates.sun import B0
 
-    with quiet_time_warnings():
-        return _write_scenario(Path(out), settings or ScenarioSettings(), progress, force, B0)
-
-
-def _write_scenario(out: Path, settings: ScenarioSettings, progress, force: bool, B0) -> dict:
     if settings.cycles < 1:
         raise SettingsError(f"cycles={settings.cycles} must be at least 1")
     if (out / "truth.json").exists() and not force:
@@ -533,8 +533,3 @@ def settings_for(resolution: str = "standard", **changes) -> ScenarioSettings:
     base = ScenarioSettings()
     instruments = tuple(replace(i, nlat=g[0], nlon=g[1]) for i, g in zip(base.instruments, grids, strict=True))
     return replace(base, model_nlat=nlat, model_nlon=nlon, instruments=instruments, **changes)
-
-
-def settings_with(**changes) -> ScenarioSettings:
-    """Default settings with some fields changed (a convenience for scripts and tests)."""
-    return replace(ScenarioSettings(), **changes)
