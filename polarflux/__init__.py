@@ -4,7 +4,16 @@ The public API is what this module exports; everything else may change.
 """
 
 from ._version import __version__
+from .calibration import cross_calibrate, merge_instruments
 from .errors import MapFormatError, OutputExistsError, PolarfluxError, SettingsError
+from .events import (
+    find_cycle_extrema,
+    find_reversals,
+    read_sunspots,
+    record_events,
+    running_mean,
+    smooth_13_month,
+)
 from .maps import SynopticMap, read_map
 from .measure import CapMeasure, CapPair, axial_dipole, fill_polar_gaps, measure_caps
 from .record import measure_archive, read_record, write_record
@@ -30,4 +39,12 @@ __all__ = [
     "TransportEnsemble",
     "BipolarRegion",
     "joy_tilt",
+    "smooth_13_month",
+    "running_mean",
+    "find_cycle_extrema",
+    "find_reversals",
+    "read_sunspots",
+    "record_events",
+    "cross_calibrate",
+    "merge_instruments",
 ]

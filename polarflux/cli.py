@@ -46,6 +46,25 @@ def build_parser() -> argparse.ArgumentParser:
     transport.add_argument("--out", required=True, metavar="FILE.nc", help="output netCDF file")
     transport.add_argument("--force", action="store_true", help="overwrite an existing output")
 
+    events = commands.add_parser(
+        "events",
+        help="calibrate a record across instruments and find reversals, minima and polar fields at minima",
+        description="Bring a record onto one instrument's scale, correct the yearly viewing swing, and "
+        "find the polar reversals; with a sunspot series, the cycle minima and maxima and the polar "
+        "fields at each minimum. Prints a table and writes PREFIX.json, PREFIX.csv, PREFIX.png and "
+        "PREFIX_merged.nc.",
+    )
+    events.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    events.add_argument("--sunspots", metavar="FILE.csv",
+                        help="sunspot numbers: columns date (or year) and sunspot_number, monthly or yearly")
+    events.add_argument("--reference", metavar="INSTRUMENT", help="instrument whose scale the record takes "
+                        "(default: the one with most maps)")
+    events.add_argument("--per-band", action="store_true", help="separate north and south cap scale factors")
+    events.add_argument("--viewing", choices=("b0", "annual", "none"), default="b0",
+                        help="yearly viewing correction (default: b0, a regression on the B0 angle)")
+    events.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without its suffix + _events)")
+    events.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
     synth = commands.add_parser(
         "synth",
         help="write the invented multi-cycle scenario: synoptic maps plus their truth",
@@ -103,6 +122,8 @@ def main(argv: list[str] | None = None) -> int:
             return _transport(args, parser)
         if args.command == "synth":
             return _synth(args, parser)
+        if args.command == "events":
+            return _events(args, parser)
     except PolarfluxError as exc:
         print(f"polarflux: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -191,6 +212,105 @@ def _transport(args, parser) -> int:
           f"axial dipole {float(end.axial_dipole):.3f} G")
     print(f"written to {out}")
     return EXIT_OK
+
+
+def _events(args, parser) -> int:
+    import json
+
+    from ._io import atomic_path, check_writable
+    from .calibration import merge_instruments
+    from .events import read_sunspots, record_events
+    from .plots import plot_record_events
+    from .record import read_record
+
+    record_path = Path(args.record)
+    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_events")
+    outputs = {k: prefix.with_name(prefix.name + suffix) for k, suffix in
+               (("json", ".json"), ("csv", ".csv"), ("png", ".png"), ("nc", "_merged.nc"))}
+    for path in outputs.values():
+        check_writable(path, args.force)
+    if not record_path.exists():
+        parser.error(f"{record_path}: no such record")
+    record = read_record(record_path)
+    merged = merge_instruments(record, reference=args.reference, per_band=args.per_band, viewing=args.viewing)
+    sunspots = read_sunspots(args.sunspots) if args.sunspots else (None, None)
+    found = record_events(merged, *sunspots)
+    found["record"] = str(record_path)
+    found["scale_factors"] = json.loads(merged.attrs["scale_factors"])
+    found["reference_instrument"] = merged.attrs["reference_instrument"]
+    found["band_factors_needed"] = bool(merged.attrs["band_factors_needed"])
+    found["viewing_correction"] = args.viewing
+    print(_events_table(found))
+    with atomic_path(outputs["json"], force=args.force) as tmp:
+        tmp.write_text(json.dumps(found, indent=1, default=float), encoding="utf-8")
+    with atomic_path(outputs["csv"], force=args.force) as tmp:
+        tmp.write_text(_events_csv(found), encoding="utf-8")
+    with atomic_path(outputs["nc"], force=args.force) as tmp:
+        merged.to_netcdf(tmp, engine="netcdf4")
+    fig = plot_record_events(merged, found, caption=f"polarflux events: {record_path}")
+    with atomic_path(outputs["png"], force=args.force) as tmp:
+        fig.savefig(tmp, dpi=120, format="png")
+    print("outputs: " + ", ".join(str(p) for p in outputs.values()))
+    return EXIT_OK
+
+
+def _date(year: float) -> str:
+    import numpy as np
+
+    from .events import from_decimal_year
+
+    if year != year:  # NaN
+        return "-"
+    return str(np.datetime_as_string(from_decimal_year(np.array([year]), True)[0], unit="D"))
+
+
+def _events_table(found: dict) -> str:
+    lines = []
+    for f in found["scale_factors"]:
+        lines.append(f"scale {f['instrument']} -> {f['reference']} ({f['quantity']}): {f['factor']:.4f} "
+                     f"+/- {f['uncertainty']:.4f} (95 %: {f['low95']:.4f}-{f['high95']:.4f}, {f['pairs']} rotations)")
+    if found["scale_factors"]:
+        lines.append("separate cap factors needed: " + ("yes" if found["band_factors_needed"] else
+                                                        "no (one polar factor fits both caps and the dipole)"))
+    lines.append(f"{'event':<18} {'hemisphere':<10} {'date':<10}  {'window':<23}  value")
+    for hemisphere in ("north", "south"):
+        for r in found["reversals"][hemisphere]:
+            window = f"{_date(r['earliest'])}..{_date(r['latest'])}" if r["crossings"] > 1 else "-"
+            lines.append(f"{'polar reversal':<18} {hemisphere:<10} {_date(r['time']):<10}  {window:<23}  "
+                         f"now {'+' if r['new_sign'] > 0 else '-'}")
+    for lag in found["reversal_lags"]:
+        lines.append(f"{'reversal lag':<18} {'S - N':<10} {_date(lag['north']):<10}  {'':<23}  {lag['lag_years']:+.2f} yr")
+    for m in found["minima"]:
+        lines.append(f"{'cycle minimum':<18} {'':<10} {_date(m['time']):<10}  {'':<23}  SSN {m['sunspot_number']:.1f}")
+    for m in found["maxima"]:
+        lines.append(f"{'cycle maximum':<18} {'':<10} {_date(m['time']):<10}  {'':<23}  SSN {m['sunspot_number']:.1f}")
+    for a in found["at_minima"]:
+        lines.append(f"{'at minimum':<18} {'N / S / D':<10} {_date(a['time']):<10}  {'':<23}  "
+                     f"{a['north']:+.2f} / {a['south']:+.2f} / {a['axial_dipole']:+.2f} G, "
+                     f"asymmetry {a['asymmetry']:+.2f}")
+    return "\n".join(lines)
+
+
+def _events_csv(found: dict) -> str:
+    import csv
+    import io
+
+    buffer = io.StringIO()
+    writer = csv.writer(buffer)
+    writer.writerow(["event", "hemisphere", "time_year", "date", "earliest_year", "latest_year", "value", "unit"])
+    for hemisphere in ("north", "south"):
+        for r in found["reversals"][hemisphere]:
+            writer.writerow(["reversal", hemisphere, f"{r['time']:.4f}", _date(r["time"]), f"{r['earliest']:.4f}",
+                             f"{r['latest']:.4f}", r["new_sign"], "new sign"])
+    for kind in ("minima", "maxima"):
+        for m in found[kind]:
+            writer.writerow([kind[:-1] + "um", "", f"{m['time']:.4f}", _date(m["time"]), "", "",
+                             f"{m['sunspot_number']:.2f}", "sunspot number"])
+    for a in found["at_minima"]:
+        for key, unit in (("north", "G"), ("south", "G"), ("axial_dipole", "G"), ("asymmetry", "1")):
+            writer.writerow([f"{key}_at_minimum", "", f"{a['time']:.4f}", _date(a["time"]), "", "",
+                             f"{a[key]:.4f}", unit])
+    return buffer.getvalue()
 
 
 def _scenario_settings(args, parser):

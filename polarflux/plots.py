@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["plot_polar_fields", "HEMISPHERE_STYLE"]
+__all__ = ["plot_polar_fields", "plot_record_events", "HEMISPHERE_STYLE"]
 
 #: Line colours per hemisphere: a blue and an orange that stay apart for colour-blind
 #: readers; line styles and markers keep them apart in grey-scale print too.
@@ -75,3 +75,49 @@ def _add_caption(fig, caption: str) -> None:
     if engine is not None and hasattr(engine, "set"):
         engine.set(rect=(0.0, 0.045, 1.0, 0.955))
     fig.text(0.01, 0.008, caption, fontsize="x-small", color="0.35", ha="left", va="bottom")
+
+
+def plot_record_events(record, events: dict | None = None, ax=None, caption: str | None = None):
+    """Polar mean fields of a merged record, raw and smoothed, with reversals and minima marked.
+
+    Parameters
+    ----------
+    record : xarray.Dataset
+        From :func:`polarflux.calibration.merge_instruments`.
+    events : dict, optional
+        From :func:`polarflux.events.record_events`; reversals are drawn as vertical
+        lines in each hemisphere's colour and style, minima as grey dotted lines.
+    """
+    from .events import RECORD_MIN_COUNT, from_decimal_year, running_mean
+
+    fig, ax = _new_axes(ax)
+    times = record["time"].values
+    variable = (events or {}).get("variable", "mean_field_corrected")
+    if variable not in record:
+        variable = "mean_field"
+    smoothing = int((events or {}).get("smoothing_entries", 13))
+    for hemisphere, style in HEMISPHERE_STYLE.items():
+        raw = record["mean_field"].sel(hemisphere=hemisphere).values
+        ax.plot(times, raw, marker=".", markersize=2, linewidth=0, color=style["color"], alpha=0.45,
+                label=f"{hemisphere}, per rotation")
+        smooth = running_mean(record[variable].sel(hemisphere=hemisphere).values, smoothing,
+                              min(smoothing, RECORD_MIN_COUNT))
+        ax.plot(times, smooth, linewidth=1.6, label=f"{hemisphere}, {smoothing}-rotation mean (corrected)", **style)
+    if events:
+        as_dt = np.issubdtype(times.dtype, np.datetime64)
+        for hemisphere, style in HEMISPHERE_STYLE.items():
+            for k, r in enumerate(events["reversals"][hemisphere]):
+                when = from_decimal_year(np.array([r["time"]]), as_dt)[0]
+                ax.axvline(when, color=style["color"], linestyle=style["linestyle"], linewidth=1.0,
+                           label=f"{hemisphere} reversal" if k == 0 else None)
+        for k, m in enumerate(events["minima"]):
+            when = from_decimal_year(np.array([m["time"]]), as_dt)[0]
+            ax.axvline(when, color="0.4", linestyle=":", linewidth=1.2, label="cycle minimum" if k == 0 else None)
+    ax.axhline(0.0, color="0.6", linewidth=0.8)
+    ax.set_xlabel("time (UTC)")
+    ax.set_ylabel("mean radial field poleward of the cap (G)")
+    ax.set_title("Polar-field record: reversals and minima")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    if caption:
+        _add_caption(fig, caption)
+    return fig

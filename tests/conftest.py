@@ -69,3 +69,13 @@ def tiny_scenario(tmp_path_factory):
     settings = settings_for("low", cycles=1, duration_years=0.5, seed=7, missing_rotations=1)
     truth = write_scenario(folder, settings)
     return folder, truth
+
+
+@pytest.fixture(scope="session")
+def three_cycles(tmp_path_factory):
+    """Three cycles of the invented scenario at low resolution, with both instruments (overlap 22-26 yr)."""
+    from polarflux.synthetic import settings_for, write_scenario
+
+    folder = tmp_path_factory.mktemp("three_cycles")
+    truth = write_scenario(folder, settings_for("low", cycles=3, seed=11))
+    return folder, truth

@@ -25,10 +25,8 @@ from polarflux.synthetic import ScenarioSettings, settings_for, write_scenario
 
 
 @pytest.fixture(scope="module")
-def scenario(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("scenario")
-    truth = write_scenario(folder, settings_for("low", cycles=3, seed=11))
-    return folder, truth
+def scenario(three_cycles):
+    return three_cycles
 
 
 def read_csv(path):
