@@ -359,8 +359,6 @@ def _prepare_demo_folder(folder: Path) -> None:
 def _demo(args, parser) -> int:
     import json
 
-    import numpy as np
-
     from .plots import plot_polar_fields
     from .record import expand_inputs, write_record
 
@@ -391,12 +389,53 @@ def _demo(args, parser) -> int:
     print(f"measured {len(rows)} of {len(files)} maps, {ds.attrs['failed_count']} failed; "
           f"cap poleward of {args.cap:g} deg, fill={args.fill}")
     last = ds.isel(time=-1)
-    print(f"latest map ({np.datetime_as_string(last['time'].values, unit='D')}, {last['instrument'].values}): "
+    print(f"latest map ({str(last['time'].values)[:10]}, {last['instrument'].values}): "
           f"north {float(last['mean_field'].sel(hemisphere='north')):.2f} G, "
           f"south {float(last['mean_field'].sel(hemisphere='south')):.2f} G, "
           f"axial dipole {float(last['axial_dipole']):.2f} G")
-    print(f"outputs: record {csv_path} and {nc_path}; figure {figure}; truth {scenario / 'truth.json'}")
+    events_figure, events_json = _demo_events(ds, scenario, folder)
+    print(f"outputs: record {csv_path} and {nc_path}; figures {figure} and {events_figure}; "
+          f"events {events_json}; truth {scenario / 'truth.json'}")
     return EXIT_OK if ds.attrs["failed_count"] == 0 else EXIT_SOME_FAILED
+
+
+def _demo_events(ds, scenario: Path, folder: Path):
+    """The record analysis on the demo record, beside the scenario's truth."""
+    import json
+
+    import numpy as np
+
+    from ._io import atomic_path
+    from .calibration import merge_instruments
+    from .events import read_sunspots, record_events, to_decimal_year
+    from .plots import plot_record_events
+
+    merged = merge_instruments(ds)
+    found = record_events(merged, *read_sunspots(scenario / "sunspots.csv"))
+    found["scale_factors"] = json.loads(merged.attrs["scale_factors"])
+    found["band_factors_needed"] = bool(merged.attrs["band_factors_needed"])
+    truth = json.loads((scenario / "truth.json").read_text())
+    start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
+    print(_events_table(found))
+    scales = {i["name"]: i["scale"] for i in truth["instruments"]}
+    for f in found["scale_factors"]:
+        if f["quantity"] == "polar":
+            print(f"truth: {f['instrument']} -> {f['reference']} scale {scales[f['reference']] / scales[f['instrument']]:.4f}")
+    for c in truth["cycles"]:
+        for h in ("north", "south"):
+            found_times = [r["time"] - start for r in found["reversals"][h]]
+            if c[f"{h}_reversal_years"] is not None and found_times:
+                nearest = min(found_times, key=lambda x: abs(x - c[f"{h}_reversal_years"]))
+                print(f"truth: cycle {c['cycle']} {h} reversal {_date(start + c[f'{h}_reversal_years'])}, "
+                      f"found {_date(start + nearest)}")
+    events_json = folder / "polar_events.json"
+    with atomic_path(events_json, force=True) as tmp:
+        tmp.write_text(json.dumps(found, indent=1, default=float), encoding="utf-8")
+    fig = plot_record_events(merged, found, caption=f"polarflux demo: invented scenario in {scenario}; "
+                             "instruments merged onto the reference scale, B0 swing corrected")
+    figure = folder / "polar_events.png"
+    fig.savefig(figure, dpi=120)
+    return figure, events_json
 
 
 def _truth_series(path: Path) -> dict:
