@@ -14,6 +14,7 @@ from .events import (
     running_mean,
     smooth_13_month,
 )
+from .forecast import CAUTION, fit_precursor, forecast_from_record
 from .maps import SynopticMap, read_map
 from .measure import CapMeasure, CapPair, axial_dipole, fill_polar_gaps, measure_caps
 from .record import measure_archive, read_record, write_record
@@ -47,4 +48,7 @@ __all__ = [
     "record_events",
     "cross_calibrate",
     "merge_instruments",
+    "fit_precursor",
+    "forecast_from_record",
+    "CAUTION",
 ]

@@ -65,6 +65,27 @@ def build_parser() -> argparse.ArgumentParser:
     events.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without its suffix + _events)")
     events.add_argument("--force", action="store_true", help="overwrite existing outputs")
 
+    forecast = commands.add_parser(
+        "forecast",
+        help="project the polar field to the coming minimum and forecast the next cycle",
+        description="Calibrate the precursor relation on the record's own cycles (or a calibration CSV), "
+        "project the polar field to the coming minimum with a transport ensemble, and forecast the next "
+        "cycle's amplitude and time of maximum with 68 %% and 95 %% ranges. Writes PREFIX.json, "
+        "PREFIX_fan.png and PREFIX_calibration.png. A forecast is probabilistic.",
+    )
+    forecast.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    forecast.add_argument("--sunspots", required=True, metavar="FILE.csv",
+                          help="sunspot numbers: columns date (or year) and sunspot_number")
+    forecast.add_argument("--calibration", metavar="FILE.csv",
+                          help="calibration pairs: columns cycle, proxy, next_amplitude, source")
+    forecast.add_argument("--proxy", choices=("axial_dipole", "mean_field"), default="axial_dipole",
+                          help="polar proxy at minimum (default: axial_dipole)")
+    forecast.add_argument("--members", type=int, default=300, metavar="N", help="ensemble members (default: 300)")
+    forecast.add_argument("--seed", type=int, default=0, help="random seed of the ensemble (default: 0)")
+    forecast.add_argument("--as-of", metavar="DATE", help="forecast as on this date (YYYY-MM-DD): a hindcast")
+    forecast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without suffix + _forecast)")
+    forecast.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
     synth = commands.add_parser(
         "synth",
         help="write the invented multi-cycle scenario: synoptic maps plus their truth",
@@ -124,6 +145,8 @@ def main(argv: list[str] | None = None) -> int:
             return _synth(args, parser)
         if args.command == "events":
             return _events(args, parser)
+        if args.command == "forecast":
+            return _forecast(args, parser)
     except PolarfluxError as exc:
         print(f"polarflux: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -252,6 +275,79 @@ def _events(args, parser) -> int:
         fig.savefig(tmp, dpi=120, format="png")
     print("outputs: " + ", ".join(str(p) for p in outputs.values()))
     return EXIT_OK
+
+
+def _forecast(args, parser) -> int:
+    import numpy as np
+
+    from ._io import check_writable
+    from .events import read_sunspots
+    from .forecast import forecast_from_record, read_calibration
+    from .record import read_record
+
+    record_path = Path(args.record)
+    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
+    outputs = {"json": prefix.with_name(prefix.name + ".json"), "fan": prefix.with_name(prefix.name + "_fan.png"),
+               "calibration": prefix.with_name(prefix.name + "_calibration.png")}
+    for path in outputs.values():
+        check_writable(path, args.force)
+    if args.members < 10:
+        parser.error("--members must be at least 10")
+    if not record_path.exists():
+        parser.error(f"{record_path}: no such record")
+    as_of = None
+    if args.as_of:
+        try:
+            as_of = np.datetime64(args.as_of, "ns")
+        except ValueError:
+            parser.error(f"--as-of {args.as_of!r}: expected a date YYYY-MM-DD")
+    record = read_record(record_path)
+    t, v = read_sunspots(args.sunspots)
+    calibration = read_calibration(args.calibration) if args.calibration else None
+    result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of,
+                                  members=args.members, seed=args.seed,
+                                  bases=("", str(record_path.parent), str(record_path.parent.parent)))
+    print(_forecast_text(result))
+    _write_forecast(result, t, v, outputs, args.force, caption=f"polarflux forecast: {record_path}")
+    print("outputs: " + ", ".join(str(p) for p in outputs.values()))
+    return EXIT_OK
+
+
+def _write_forecast(result, t, v, outputs, force, caption, truth_amplitude=None) -> None:
+    import json
+
+    from ._io import atomic_path
+    from .plots import plot_calibration, plot_forecast_fan
+
+    public = {k: val for k, val in result.items() if k not in ("samples", "fit")}
+    with atomic_path(outputs["json"], force=force) as tmp:
+        tmp.write_text(json.dumps(public, indent=1, default=float), encoding="utf-8")
+    for key, fig in (("fan", plot_forecast_fan(result, t, v, caption=caption, truth_amplitude=truth_amplitude)),
+                     ("calibration", plot_calibration(result, caption=caption))):
+        with atomic_path(outputs[key], force=force) as tmp:
+            fig.savefig(tmp, dpi=120, format="png")
+
+
+def _forecast_text(result: dict) -> str:
+    cal, proj, fc = result["calibration"], result["projection"], result["forecast"]
+    a, m = fc["amplitude"], fc["maximum_time"]
+    lines = [
+        f"forecast as of {_date(result['as_of'])}, proxy |{result['proxy']}| at minimum",
+        f"calibration: amplitude = {cal['intercept']:.1f} + {cal['slope']:.1f} x proxy on {len(cal['pairs'])} cycles "
+        f"(standard errors {', '.join(f'{x:.1f}' for x in cal['standard_errors'])}; residual sd {cal['residual_sd']:.1f})",
+        "hindcast errors (leave one out, predicted - actual): "
+        + ", ".join(f"{p['cycle']}: {e:+.1f}" for p, e in zip(cal["pairs"], cal["loo_errors"], strict=True))
+        + f"; rms {cal['loo_rms']:.1f}",
+        f"projection: {proj['method']} ({proj['members']} members); proxy at minimum "
+        f"{proj['proxy_at_minimum']['median']:.2f} (95 %: {proj['proxy_at_minimum']['low95']:.2f}-"
+        f"{proj['proxy_at_minimum']['high95']:.2f}); minimum {_date(proj['minimum_time']['median'])}",
+        f"next cycle amplitude: {a['median']:.0f} (68 %: {a['low68']:.0f}-{a['high68']:.0f}; "
+        f"95 %: {a['low95']:.0f}-{a['high95']:.0f})",
+        f"next maximum: {_date(m['median'])} (68 %: {_date(m['low68'])} to {_date(m['high68'])}; "
+        f"95 %: {_date(m['low95'])} to {_date(m['high95'])})",
+        "caution: " + result["caution"],
+    ]
+    return "\n".join(lines)
 
 
 def _date(year: float) -> str:
@@ -394,9 +490,38 @@ def _demo(args, parser) -> int:
           f"south {float(last['mean_field'].sel(hemisphere='south')):.2f} G, "
           f"axial dipole {float(last['axial_dipole']):.2f} G")
     events_figure, events_json = _demo_events(ds, scenario, folder)
+    forecast_json = _demo_forecast(ds, scenario, folder, truth)
     print(f"outputs: record {csv_path} and {nc_path}; figures {figure} and {events_figure}; "
-          f"events {events_json}; truth {scenario / 'truth.json'}")
+          f"events {events_json}; forecast {forecast_json} (+ _fan.png, _calibration.png); "
+          f"truth {scenario / 'truth.json'}")
     return EXIT_OK if ds.attrs["failed_count"] == 0 else EXIT_SOME_FAILED
+
+
+def _demo_forecast(ds, scenario: Path, folder: Path, truth: dict):
+    """Forecast the cycle after the archive from the maps two years before its minimum, beside the truth."""
+    import numpy as np
+
+    from .events import read_sunspots, to_decimal_year
+    from .forecast import forecast_from_record
+
+    start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
+    t, v = read_sunspots(scenario / "sunspots.csv")
+    target = truth.get("next_cycle") or truth["cycles"][-1]
+    as_of = start + target["start_years"] - 2.0
+    try:
+        result = forecast_from_record(ds, t, v, as_of=as_of, members=300, seed=0)
+    except PolarfluxError as exc:
+        print(f"forecast skipped: {exc}")
+        return None
+    print(_forecast_text(result))
+    print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
+          f"{_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
+          f"{target['random_factor']:.3f})")
+    outputs = {"json": folder / "forecast.json", "fan": folder / "forecast_fan.png",
+               "calibration": folder / "forecast_calibration.png"}
+    _write_forecast(result, t, v, outputs, True, caption=f"polarflux demo: invented scenario; forecast as of "
+                    f"{_date(as_of)}; dotted line: the truth", truth_amplitude=target["amplitude"])
+    return outputs["json"]
 
 
 def _demo_events(ds, scenario: Path, folder: Path):

@@ -145,8 +145,9 @@ def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> Cycl
     ``min_separation_years`` keep the lower. At either end of the series a low
     point counts only if it is under a tenth of the highest value within one
     separation of it (so a declining phase is not taken for a minimum). Between
-    consecutive minima the maximum is the highest smoothed value. Values are those
-    of the smoothed series.
+    consecutive minima the maximum is the highest smoothed value; after the last
+    minimum, the highest value counts as a maximum once the series is two years
+    past it and below half of it. Values are those of the smoothed series.
 
     Returns
     -------
@@ -184,6 +185,16 @@ def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> Cycl
         segment = np.arange(a, b + 1)
         segment = segment[np.isfinite(smooth[segment])]
         maxima.append(int(segment[np.argmax(smooth[segment])]))
+    if minima:
+        # after the last minimum: a maximum that the series has clearly left behind
+        # (two years later and below half of it) is known already
+        tail = np.arange(minima[-1], x.size)
+        tail = tail[np.isfinite(smooth[tail])]
+        if tail.size:
+            peak = int(tail[np.argmax(smooth[tail])])
+            after = tail[tail > peak]
+            if after.size and t[after[-1]] - t[peak] >= 2.0 and smooth[after[-1]] < 0.5 * smooth[peak]:
+                maxima.append(peak)
     mins = Extrema(from_decimal_year(t[minima], as_datetime), smooth[minima])
     maxs = Extrema(from_decimal_year(t[maxima], as_datetime), smooth[maxima])
     return CycleExtrema(mins, maxs)

@@ -46,13 +46,16 @@ _ROTATION_KEYS = ("CAR_ROT", "CARROT")
 _INSTRUMENT_KEYS = ("INSTRUME", "TELESCOP", "ORIGIN")
 @contextlib.contextmanager
 def quiet_time_warnings():
-    """Silence ERFA's "dubious year" warning for times beyond the leap-second table.
+    """Silence ERFA's warnings for times beyond its tables.
 
-    Map times after the last announced leap second (the demo scenario lies in a
-    future epoch) would otherwise warn on every conversion.
+    Map times after the last announced leap second ("dubious year") or after 2100
+    (the Earth ephemeris "date outside the range 1900-2100", still good to far
+    better than the B0 angle needs) would otherwise warn on every conversion; the
+    demo scenario lies in a future epoch.
     """
     with warnings.catch_warnings():
         warnings.filterwarnings("ignore", message=".*dubious year.*")
+        warnings.filterwarnings("ignore", message=".*date outside.*range 1900-2100.*")
         yield
 
 

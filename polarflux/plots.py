@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["plot_polar_fields", "plot_record_events", "HEMISPHERE_STYLE"]
+__all__ = ["plot_polar_fields", "plot_record_events", "plot_forecast_fan", "plot_calibration", "HEMISPHERE_STYLE"]
 
 #: Line colours per hemisphere: a blue and an orange that stay apart for colour-blind
 #: readers; line styles and markers keep them apart in grey-scale print too.
@@ -118,6 +118,83 @@ def plot_record_events(record, events: dict | None = None, ax=None, caption: str
     ax.set_ylabel("mean radial field poleward of the cap (G)")
     ax.set_title("Polar-field record: reversals and minima")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    if caption:
+        _add_caption(fig, caption)
+    return fig
+
+
+def _cycle_curves(amplitudes, minima, times):
+    """HWR cycle-shape curves (sunspot number against decimal years) for sampled amplitudes and minima."""
+    from .synthetic import _shape_for_amplitude, cycle_shape
+
+    grid = np.linspace(max(5.0, float(np.min(amplitudes))), max(10.0, float(np.max(amplitudes))), 30)
+    a_grid = np.array([_shape_for_amplitude(a) for a in grid])
+    a = np.interp(np.clip(amplitudes, grid[0], grid[-1]), grid, a_grid)
+    months = (times[None, :] - np.asarray(minima)[:, None]) * 12.0
+    curves = np.array([cycle_shape(m, ak) for m, ak in zip(months, a, strict=True)])
+    scale = np.asarray(amplitudes) / np.maximum(curves.max(axis=1), 1e-9)
+    return curves * scale[:, None]
+
+
+def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, caption: str | None = None,
+                      truth_amplitude: float | None = None):
+    """Fan chart: the sunspot record, then the forecast cycle's 68 % and 95 % ranges (decimal years)."""
+    from .events import smooth_13_month
+
+    fig, ax = _new_axes(ax)
+    t = np.asarray(sunspot_times)
+    v = np.asarray(sunspot_values)
+    history = t >= result["as_of"] - 25.0
+    ax.plot(t[history], v[history], color="0.6", linewidth=0.6, label="sunspot number")
+    smooth = smooth_13_month(v) if np.median(np.diff(t)) < 2 / 12 else v
+    ax.plot(t[history], smooth[history], color="black", linewidth=1.2, label="13-month smoothed")
+    samples = result["samples"]
+    minima = np.asarray(samples.get("minimum_time", samples["maximum_time"] - 4.0))
+    future = np.linspace(result["as_of"], result["as_of"] + 14.0, 240)
+    count = min(400, samples["amplitude"].size)
+    curves = _cycle_curves(samples["amplitude"][:count], minima[:count], future)
+    low95, low68, mid, high68, high95 = np.percentile(curves, [2.5, 16, 50, 84, 97.5], axis=0)
+    ax.fill_between(future, low95, high95, color="#1f5fa6", alpha=0.18, label="95 % range")
+    ax.fill_between(future, low68, high68, color="#1f5fa6", alpha=0.35, label="68 % range")
+    ax.plot(future, mid, color="#1f5fa6", linewidth=1.5, label="median")
+    amp = result["forecast"]["amplitude"]
+    ax.errorbar([result["forecast"]["maximum_time"]["median"]], [amp["median"]],
+                yerr=[[amp["median"] - amp["low95"]], [amp["high95"] - amp["median"]]], fmt="o",
+                color="#c45a12", capsize=3, label="next maximum (median, 95 %)")
+    if truth_amplitude is not None:
+        ax.axhline(truth_amplitude, color="#c45a12", linestyle=":", linewidth=1.0, label="truth amplitude")
+    ax.axvline(result["as_of"], color="0.4", linestyle="--", linewidth=0.8, label="forecast date")
+    ax.set_xlabel("time (decimal year)")
+    ax.set_ylabel("sunspot number")
+    ax.set_title("Next-cycle forecast (probabilistic; see the caution)")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    _add_caption(fig, caption or "A forecast is probabilistic; operations follow the official space-weather forecasts.")
+    return fig
+
+
+def plot_calibration(result: dict, ax=None, caption: str | None = None):
+    """The calibration pairs, the fitted line with its 68 % and 95 % prediction bands, and the projection."""
+    fig, ax = _new_axes(ax, size=(7.5, 5))
+    fit = result["fit"]
+    x = fit.proxy
+    span = np.linspace(0.0, max(float(np.max(x)), result["projection"]["proxy_at_minimum"]["high95"]) * 1.15, 100)
+    p = fit.predict(span)
+    ax.fill_between(span, p.low95, p.high95, color="#1f5fa6", alpha=0.15, label="95 % prediction band")
+    ax.fill_between(span, p.low68, p.high68, color="#1f5fa6", alpha=0.3, label="68 % prediction band")
+    ax.plot(span, p.median, color="#1f5fa6", label=f"fit: {fit.intercept:.1f} + {fit.slope:.1f} x proxy")
+    ax.plot(x, fit.amplitude, "ks", markersize=5, label="calibration cycles")
+    for xi, yi, label in zip(x, fit.amplitude, fit.labels or [""] * x.size, strict=True):
+        ax.annotate(str(label), (xi, yi), textcoords="offset points", xytext=(4, 4), fontsize="x-small")
+    proj = result["projection"]["proxy_at_minimum"]
+    amp = result["forecast"]["amplitude"]
+    ax.errorbar([proj["median"]], [amp["median"]], xerr=[[proj["median"] - proj["low95"]], [proj["high95"] - proj["median"]]],
+                yerr=[[amp["median"] - amp["low95"]], [amp["high95"] - amp["median"]]], fmt="o", color="#c45a12",
+                capsize=3, label="forecast (median, 95 %)")
+    unit = "G"
+    ax.set_xlabel(f"|{result['proxy'].replace('_', ' ')}| at minimum ({unit})")
+    ax.set_ylabel("amplitude of the next cycle (sunspot number)")
+    ax.set_title("Precursor calibration")
+    ax.legend(loc="upper left", fontsize="x-small")
     if caption:
         _add_caption(fig, caption)
     return fig

@@ -379,6 +379,16 @@ def _write_scenario(out: Path, settings: ScenarioSettings, progress, force: bool
 
     truth = _truth(settings, cycles, series, starts, total_years, flux_scale, missing, numbers, written)
     truth["periods_years"] = [float(p) for p in np.diff(starts)]
+    if settings.duration_years is None:
+        # the cycle the archive ends before: its amplitude is already decided by the dipole now
+        next_region = _advance(stepper, regions, float(starts[-1]), next_region)
+        dipole = float(profile_measures(stepper.field().mean(axis=1), grid.lat_edges)["axial_dipole"])
+        factor = math.exp(rng_cycles.normal(0.0, settings.precursor_scatter))
+        amplitude = settings.reference_amplitude * abs(dipole) / settings.reference_dipole * factor
+        peak = _Cycle(settings.cycles + 1, float(starts[-1]), amplitude, _shape_for_amplitude(amplitude), 1)
+        truth["next_cycle"] = {"cycle": settings.cycles + 1, "start_years": float(starts[-1]), "amplitude": amplitude,
+                               "maximum_years": peak.peak_time(), "precursor_dipole_g": dipole,
+                               "random_factor": factor}
     _write_regions(out / "regions.csv", regions[:next_region], cycle_of)
     _write_text(out / "truth.json", json.dumps(truth, indent=1), force=True)
     _write_series(out / "truth_series.csv", series)

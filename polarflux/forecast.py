@@ -1,0 +1,454 @@
+"""The forecast: project the polar field to the coming minimum and predict the next cycle.
+
+Precursor calibration
+---------------------
+The amplitude of the next cycle is regressed on a polar proxy at the minimum
+before it (the axial dipole, the mean polar field, or the polar flux) by ordinary
+least squares, with the classical Student-t prediction intervals and leave-one-out
+hindcast errors (:func:`fit_precursor`). A stronger polar field at minimum gives
+a stronger next cycle (Schatten et al. 1978, GRL 5, 411; Munoz-Jaramillo et al.
+2013, ApJL 767, L25): the slope must come out positive.
+
+Projection
+----------
+Before the minimum the polar field is not yet final. The latest map's longitude
+average (polar gaps filled as ``measure_caps(fill="profile")`` does, scaled onto
+the record's reference instrument) is evolved by an ensemble of axisymmetric
+surface flux transport models (:class:`~polarflux.transport.TransportEnsemble`)
+to each member's date of minimum. Members draw the diffusivity (250-600 km^2/s),
+the peak flow speed (8-15 m/s), the decay time (5-10 years, or none) and the date
+of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years, not
+before the next rotation). The flux the declining cycle will still emerge is not
+modelled (our documented choice): late-cycle regions emerge at low latitudes,
+where much of their flux cancels across the equator, and an emergence model fitted
+to a cycle in decline adds its own large uncertainty.
+
+Forecast
+--------
+Monte Carlo: each member's projected proxy goes through the calibration's
+predictive distribution (a Student-t draw around the fitted line) to one
+amplitude; the distribution gives the median and the 68 % and 95 % ranges. The
+time of maximum follows from the amplitude by the rise-and-decay cycle shape of
+Hathaway, Wilson & Reichmann (1994, Sol. Phys. 151, 177), whose width b depends on
+the amplitude (the Waldmeier effect), with a scatter of 0.5 years (our choice).
+
+A forecast is probabilistic. Operations that affect crew or spacecraft safety
+follow the responsible agencies' official space-weather forecasts and local
+rules, not this tool.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import stats
+
+from .errors import PolarfluxError, SettingsError
+
+__all__ = [
+    "CAUTION",
+    "PrecursorFit",
+    "Prediction",
+    "fit_precursor",
+    "calibration_from_events",
+    "read_calibration",
+    "project_to_minimum",
+    "forecast_next_cycle",
+    "rise_time_years",
+    "forecast_from_record",
+]
+
+CAUTION = (
+    "This forecast is probabilistic: the next cycle may fall outside the ranges given. "
+    "Operations that affect crew or spacecraft safety must follow the responsible agencies' "
+    "official space-weather forecasts and local rules, not this tool."
+)
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """A predicted amplitude: the central value and prediction intervals (68 % and 95 %)."""
+
+    median: np.ndarray
+    low68: np.ndarray
+    high68: np.ndarray
+    low95: np.ndarray
+    high95: np.ndarray
+    se: np.ndarray
+
+
+@dataclass
+class PrecursorFit:
+    """Ordinary least squares of next-cycle amplitude on a polar proxy at minimum.
+
+    Attributes
+    ----------
+    coefficients : ndarray
+        (intercept, slope), or (slope,) through the origin.
+    standard_errors : ndarray
+    residual_sd : float
+        Standard deviation of the residuals, sqrt(RSS / (n - p)).
+    dof : int
+        n - p.
+    loo_errors : ndarray
+        Leave-one-out hindcast errors (predicted minus actual), one per cycle.
+    """
+
+    proxy: np.ndarray
+    amplitude: np.ndarray
+    through_origin: bool
+    coefficients: np.ndarray
+    standard_errors: np.ndarray
+    residual_sd: float
+    dof: int
+    loo_errors: np.ndarray
+    labels: list = field(default_factory=list)
+    _inverse: np.ndarray = field(default=None, repr=False)
+
+    @property
+    def slope(self) -> float:
+        return float(self.coefficients[-1])
+
+    @property
+    def intercept(self) -> float:
+        return 0.0 if self.through_origin else float(self.coefficients[0])
+
+    def _design(self, x) -> np.ndarray:
+        x = np.atleast_1d(np.asarray(x, dtype=np.float64))
+        return x[:, None] if self.through_origin else np.column_stack([np.ones_like(x), x])
+
+    def predict(self, x) -> Prediction:
+        """Prediction intervals (Student t with ``dof`` degrees of freedom) at proxy value(s) ``x``."""
+        design = self._design(x)
+        mean = design @ self.coefficients
+        se = self.residual_sd * np.sqrt(1.0 + np.einsum("ij,jk,ik->i", design, self._inverse, design))
+        t68, t95 = stats.t.ppf([0.84134474606854293, 0.975], self.dof)
+        return Prediction(mean, mean - t68 * se, mean + t68 * se, mean - t95 * se, mean + t95 * se, se)
+
+    def sample(self, x, rng: np.random.Generator) -> np.ndarray:
+        """One draw from the predictive distribution at each proxy value in ``x``."""
+        p = self.predict(x)
+        return p.median + p.se * rng.standard_t(self.dof, size=np.shape(p.median))
+
+    @property
+    def loo_rms(self) -> float:
+        return float(np.sqrt(np.mean(self.loo_errors**2)))
+
+
+def _ols(x: np.ndarray, y: np.ndarray, through_origin: bool):
+    design = x[:, None] if through_origin else np.column_stack([np.ones_like(x), x])
+    inverse = np.linalg.inv(design.T @ design)
+    beta = inverse @ design.T @ y
+    dof = x.size - design.shape[1]
+    rss = float(np.sum((y - design @ beta) ** 2))
+    s = math.sqrt(rss / dof) if dof > 0 else math.nan  # leave-one-out fits may have no residual freedom
+    return beta, np.sqrt(np.diag(inverse)) * s, s, dof, inverse
+
+
+def fit_precursor(proxy, amplitude, through_origin: bool = False, labels=None) -> PrecursorFit:
+    """Fit amplitude = intercept + slope x proxy (or slope x proxy) by ordinary least squares.
+
+    Parameters
+    ----------
+    proxy, amplitude : array-like
+        One pair per calibration cycle: the polar proxy at a minimum (sign is
+        dropped: the polar field's sign alternates) and the amplitude of the cycle
+        after it.
+    through_origin : bool
+        Fit without an intercept.
+
+    Raises
+    ------
+    SettingsError
+        With fewer than three cycles, or when the pairs hold NaN.
+    """
+    x = np.abs(np.asarray(proxy, dtype=np.float64))
+    y = np.asarray(amplitude, dtype=np.float64)
+    if x.shape != y.shape or x.ndim != 1:
+        raise SettingsError(f"proxy and amplitude must be 1-D and of equal length ({x.shape} vs {y.shape})")
+    if x.size < 3:
+        raise SettingsError(
+            f"a precursor calibration needs at least three cycles; got {x.size}. Add cycles to the record "
+            "or supply a calibration CSV (columns cycle, proxy, next_amplitude, source)"
+        )
+    if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))):
+        raise SettingsError("calibration pairs hold NaN or inf")
+    beta, se, s, dof, inverse = _ols(x, y, through_origin)
+    loo = np.empty(x.size)
+    for i in range(x.size):
+        keep = np.arange(x.size) != i
+        b, *_ = _ols(x[keep], y[keep], through_origin)
+        loo[i] = (b[0] * x[i] if through_origin else b[0] + b[1] * x[i]) - y[i]
+    return PrecursorFit(x, y, through_origin, beta, se, s, dof, loo, list(labels or []), inverse)
+
+
+# --------------------------------------------------------------------------- calibration sets
+
+
+def calibration_from_events(events: dict, proxy: str = "axial_dipole") -> list[dict]:
+    """Calibration pairs from :func:`polarflux.events.record_events` of a record with a sunspot series.
+
+    Each minimum with a measured proxy pairs with the maximum that follows it (the
+    highest 13-month smoothed sunspot number before the next minimum, or after the
+    last minimum once the series has clearly passed it).
+    """
+    if proxy not in ("axial_dipole", "north", "south", "mean_field"):
+        raise SettingsError(f"proxy {proxy!r}: expected axial_dipole, mean_field, north or south")
+    pairs = []
+    maxima = events.get("maxima", [])
+    for k, at in enumerate(events.get("at_minima", [])):
+        later = [m for m in maxima if m["time"] > at["time"]]
+        nxt = [m["time"] for m in events.get("minima", []) if m["time"] > at["time"] + 1.0]
+        if not later or (nxt and later[0]["time"] > nxt[0]):
+            continue
+        if proxy == "mean_field":
+            value = 0.5 * (abs(at["north"]) + abs(at["south"]))
+        else:
+            value = abs(at[proxy])
+        if np.isfinite(value):
+            pairs.append({"cycle": k + 1, "minimum": at["time"], "proxy": float(value),
+                          "next_amplitude": float(later[0]["sunspot_number"]), "source": "record"})
+    return pairs
+
+
+def read_calibration(path: str | os.PathLike) -> list[dict]:
+    """Read calibration pairs from CSV with columns ``cycle, proxy, next_amplitude, source``."""
+    source = os.fspath(path)
+    try:
+        with open(source, newline="", encoding="utf-8") as handle:
+            reader = csv.DictReader(handle)
+            fields = [f.strip().lower() for f in reader.fieldnames or []]
+            reader.fieldnames = fields
+            missing = [c for c in ("cycle", "proxy", "next_amplitude") if c not in fields]
+            if missing:
+                raise PolarfluxError(f"{source}: missing column(s) {', '.join(missing)} "
+                                     "(expected cycle, proxy, next_amplitude, source)")
+            pairs = []
+            for line, row in enumerate(reader, start=2):
+                try:
+                    pairs.append({"cycle": row["cycle"].strip(), "proxy": float(row["proxy"]),
+                                  "next_amplitude": float(row["next_amplitude"]),
+                                  "source": (row.get("source") or "").strip()})
+                except (TypeError, ValueError):
+                    raise PolarfluxError(f"{source}: line {line}: proxy and next_amplitude must be numbers") from None
+    except OSError as exc:
+        raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
+    return pairs
+
+
+# --------------------------------------------------------------------------- projection
+
+
+def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, members: int = 300,
+                       seed: int = 0, nlat: int = 180, cap_latitude: float = 60.0,
+                       cycle_length=(11.0, 0.8)) -> dict:
+    """Evolve a latitude profile to each member's date of minimum with an axisymmetric ensemble.
+
+    Parameters
+    ----------
+    profile : array-like
+        Longitude-averaged radial field now (G), on ``lat_edges`` (degrees), no NaN.
+    now, last_minimum : float
+        Decimal years.
+    members, seed : int
+    cycle_length : (mean, sd)
+        Years from the last minimum to the next.
+
+    Returns
+    -------
+    dict of ndarray (members,)
+        ``minimum`` (decimal year), ``axial_dipole``, ``north``, ``south``, ``mean_field``
+        at each member's minimum, and the drawn ``diffusivity``, ``flow_speed``, ``decay_time``.
+    """
+    from .geometry import regrid_conservative
+    from .measure import profile_measures
+    from .transport import TransportEnsemble
+    from .transport.model import model_grid
+
+    rng = np.random.default_rng(seed)
+    eta = rng.uniform(250.0, 600.0, members)
+    speed = rng.uniform(8.0, 15.0, members)
+    tau = np.where(rng.random(members) < 0.25, np.inf, rng.uniform(5.0, 10.0, members))
+    minimum = last_minimum + rng.normal(cycle_length[0], cycle_length[1], members)
+    minimum = np.maximum(minimum, now + 27.2753 / 365.25)
+    horizon = float(minimum.max() - now)
+    edges, _ = model_grid(nlat, 1)
+    start = regrid_conservative(np.asarray(profile, dtype=np.float64)[:, None], lat_edges, [0.0, 360.0],
+                                edges, [0.0, 360.0])[:, 0]
+    ensemble = TransportEnsemble(nlat=nlat, diffusivity=eta, flow_speed=speed, decay_time=tau)
+    run = ensemble.run(start, years=horizon, step_days=5.0, save_every_days=27.2753, cap_latitude=cap_latitude)
+    when = now + run["time"].values
+    out = {"minimum": minimum, "diffusivity": eta, "flow_speed": speed, "decay_time": tau}
+    for name, var in (("axial_dipole", "axial_dipole"), ("north", "north_mean_field"), ("south", "south_mean_field")):
+        series = run[var].values
+        out[name] = np.array([np.interp(minimum[k], when, series[k]) for k in range(members)])
+    out["mean_field"] = 0.5 * (np.abs(out["north"]) + np.abs(out["south"]))
+    measures = profile_measures(start, edges, cap_latitude)
+    out["now"] = {k: float(v) for k, v in measures.items()}
+    return out
+
+
+# --------------------------------------------------------------------------- forecast
+
+
+def rise_time_years(amplitude) -> np.ndarray:
+    """Years from minimum to maximum for a cycle of ``amplitude`` (Hathaway, Wilson & Reichmann 1994 shape)."""
+    from .synthetic import _shape_for_amplitude, cycle_shape
+
+    months = np.linspace(0.0, 200.0, 4001)
+    amplitude = np.atleast_1d(np.asarray(amplitude, dtype=np.float64))
+    grid = np.linspace(max(5.0, amplitude.min()), max(amplitude.max(), 10.0), 40)
+    rises = np.array([months[np.argmax(cycle_shape(months, _shape_for_amplitude(a)))] / 12.0 for a in grid])
+    return np.interp(np.clip(amplitude, grid[0], grid[-1]), grid, rises)
+
+
+def _summary(values: np.ndarray) -> dict:
+    q = np.percentile(values, [2.5, 16.0, 50.0, 84.0, 97.5])
+    return {"median": float(q[2]), "low68": float(q[1]), "high68": float(q[3]),
+            "low95": float(q[0]), "high95": float(q[4])}
+
+
+def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed: int = 1,
+                        rise_scatter_years: float = 0.5) -> dict:
+    """Combine projected proxies with the calibration's predictive distribution by Monte Carlo.
+
+    Returns the amplitude and time-of-maximum distributions (median, 68 % and 95 %
+    ranges), the samples, and the caution text.
+    """
+    rng = np.random.default_rng(seed)
+    proxy = np.abs(np.asarray(projected_proxy, dtype=np.float64))
+    amplitudes = np.clip(fit.sample(proxy, rng), 0.0, None)
+    rise = rise_time_years(np.maximum(amplitudes, 5.0)) + rng.normal(0.0, rise_scatter_years, amplitudes.size)
+    peak = np.asarray(minimum_times, dtype=np.float64) + rise
+    return {
+        "amplitude": _summary(amplitudes),
+        "maximum_time": _summary(peak),
+        "minimum_time": _summary(np.asarray(minimum_times, dtype=np.float64)),
+        "proxy": _summary(proxy),
+        "samples": {"amplitude": amplitudes, "maximum_time": peak,
+                    "minimum_time": np.asarray(minimum_times, dtype=np.float64)},
+        "caution": CAUTION,
+    }
+
+
+def _latest_profile(record, merged, as_of_ns, bases=("",)):
+    """Longitude-averaged field of the latest readable map at or before ``as_of``, on the reference scale."""
+    import json
+
+    from .maps import read_map
+    from .measure import fill_polar_gaps
+
+    factors = {f["instrument"]: f["factor"] for f in json.loads(merged.attrs.get("scale_factors", "[]"))
+               if f["quantity"] == "polar"}
+    times = record["time"].values.astype("datetime64[ns]")
+    for i in np.argsort(times)[::-1]:
+        if times[i] > as_of_ns:
+            continue
+        candidates = [os.path.join(b, str(record["source"].values[i])) for b in bases]
+        found = [c for c in candidates if os.path.exists(c)]
+        if not found:
+            continue
+        path = found[0]
+        try:
+            m = fill_polar_gaps(read_map(path), float(record.attrs.get("cap_deg", 60.0)))
+        except PolarfluxError:
+            continue
+        values = np.where(np.isfinite(m.values), m.values, np.nan)
+        profile = np.nanmean(values, axis=1)
+        profile = np.where(np.isfinite(profile), profile, 0.0)
+        scale = factors.get(str(record["instrument"].values[i]), 1.0)
+        return profile * scale, m.lat_edges, path, times[i]
+    return None
+
+
+def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
+                         calibration: list[dict] | None = None, as_of=None, members: int = 300, seed: int = 0,
+                         viewing: str = "b0", bases=("",)) -> dict:
+    """The whole forecast from a measured record and a sunspot series.
+
+    Parameters
+    ----------
+    record : xarray.Dataset
+        From :func:`polarflux.measure_archive` (its ``source`` paths are read for the
+        latest map; without a readable map the projection keeps the latest proxy).
+    sunspot_times, sunspot_values : array-like
+        Decimal years and sunspot numbers.
+    proxy : {"axial_dipole", "mean_field"}
+        Polar proxy at minimum.
+    calibration : list of dict, optional
+        Pairs from :func:`read_calibration`; by default they come from the record itself.
+    as_of : datetime64 or decimal year, optional
+        Forecast as if it were this date (a hindcast): later maps and sunspot numbers are ignored.
+    bases : sequence of str
+        Folders against which relative map paths of the record are tried.
+
+    Returns
+    -------
+    dict
+        ``calibration`` (pairs, coefficients, standard errors, hindcast errors), ``projection``,
+        ``forecast`` (amplitude and time of maximum, median and 68/95 % ranges) and ``caution``.
+    """
+    from .calibration import merge_instruments
+    from .events import from_decimal_year, record_events, to_decimal_year
+
+    t_ssn = np.asarray(sunspot_times, dtype=np.float64)
+    v_ssn = np.asarray(sunspot_values, dtype=np.float64)
+    if as_of is None:
+        as_of_year = float(min(to_decimal_year(record["time"].values)[0].max(), t_ssn.max()))
+    elif isinstance(as_of, (float, int)):
+        as_of_year = float(as_of)
+    else:
+        as_of_year = float(to_decimal_year(np.array([as_of], dtype="datetime64[ns]"))[0][0])
+    as_of_ns = from_decimal_year(np.array([as_of_year]), True)[0]
+    past = record.isel(time=np.flatnonzero(record["time"].values.astype("datetime64[ns]") <= as_of_ns))
+    if past.sizes["time"] < 13:
+        raise SettingsError("the record before the forecast date is shorter than a year")
+    keep = t_ssn <= as_of_year
+    merged = merge_instruments(past, viewing=viewing)
+    events = record_events(merged, t_ssn[keep], v_ssn[keep])
+    pairs = calibration if calibration is not None else calibration_from_events(events, proxy)
+    fit = fit_precursor([p["proxy"] for p in pairs], [p["next_amplitude"] for p in pairs],
+                        labels=[p["cycle"] for p in pairs])
+    minima = [m["time"] for m in events["minima"] if m["time"] <= as_of_year]
+    if not minima:
+        raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
+    latest = _latest_profile(past, merged, as_of_ns, bases)
+    if latest is not None:
+        profile, edges, path, when = latest
+        now = float(to_decimal_year(np.array([when]))[0][0])
+        projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
+                                        cap_latitude=float(record.attrs.get("cap_deg", 60.0)))
+        projection_kind = f"transport ensemble from {path}"
+    else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
+        values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
+                        else np.nanmean(np.abs(merged["mean_field_corrected"].values), axis=1))
+        recent = values[np.isfinite(values)][-13:]
+        rng = np.random.default_rng(seed)
+        minimum = np.maximum(minima[-1] + rng.normal(11.0, 0.8, members), as_of_year + 0.08)
+        projection = {"minimum": minimum, proxy: rng.normal(recent.mean(), recent.std(ddof=1), members)}
+        now, projection_kind = as_of_year, "persistence of the latest proxy (no readable map)"
+    result = forecast_next_cycle(fit, projection[proxy], projection["minimum"], seed=seed + 1)
+    return {
+        "as_of": as_of_year,
+        "proxy": proxy,
+        "calibration": {
+            "pairs": pairs,
+            "through_origin": fit.through_origin,
+            "intercept": fit.intercept,
+            "slope": fit.slope,
+            "standard_errors": fit.standard_errors.tolist(),
+            "residual_sd": fit.residual_sd,
+            "loo_errors": fit.loo_errors.tolist(),
+            "loo_rms": fit.loo_rms,
+        },
+        "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
+                       "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"]},
+        "forecast": {"amplitude": result["amplitude"], "maximum_time": result["maximum_time"]},
+        "samples": result["samples"],
+        "fit": fit,
+        "caution": CAUTION,
+    }

@@ -1,0 +1,124 @@
+"""The forecast: precursor calibration against statsmodels, hindcasts on the invented scenario.
+
+Sources:
+  * statsmodels OLS and get_prediction(...).summary_frame (reference prediction intervals);
+  * precursor physics (common practice, following Schatten et al. 1978 and Munoz-Jaramillo et al.
+    2013): a stronger polar field at minimum gives a stronger next cycle;
+  * the invented scenario's truth (truth.json).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import statsmodels.api as sm
+
+import polarflux as pf
+from polarflux.forecast import forecast_from_record, read_calibration, rise_time_years
+
+
+@pytest.mark.parametrize("through_origin", [False, True])
+def test_precursor_fit_matches_statsmodels(through_origin):
+    rng = np.random.default_rng(4)
+    x = rng.uniform(0.8, 3.5, 9)
+    y = 20 + 55 * x + rng.normal(0, 12, x.size)
+    fit = pf.fit_precursor(x, y, through_origin=through_origin)
+    design = x[:, None] if through_origin else sm.add_constant(x)
+    ref = sm.OLS(y, design).fit()
+    np.testing.assert_allclose(fit.coefficients, ref.params, rtol=1e-8)
+    np.testing.assert_allclose(fit.standard_errors, ref.bse, rtol=1e-8)
+    x0 = np.array([1.0, 2.2, 4.0])
+    design0 = x0[:, None] if through_origin else sm.add_constant(x0, has_constant="add")
+    p = fit.predict(x0)
+    for level, low, high in ((0.95, p.low95, p.high95), (0.6826894921370859, p.low68, p.high68)):
+        frame = ref.get_prediction(design0).summary_frame(alpha=1 - level)
+        np.testing.assert_allclose(low, frame["obs_ci_lower"].to_numpy(), rtol=1e-8)
+        np.testing.assert_allclose(high, frame["obs_ci_upper"].to_numpy(), rtol=1e-8)
+    np.testing.assert_allclose(p.median, frame["mean"].to_numpy(), rtol=1e-8)
+
+
+def test_leave_one_out_errors_are_refits_without_each_cycle():
+    x = np.array([1.0, 1.6, 2.1, 2.5, 3.0])
+    y = np.array([70.0, 95.0, 130.0, 150.0, 160.0])
+    fit = pf.fit_precursor(x, y)
+    for i in range(x.size):
+        keep = np.arange(x.size) != i
+        slope, intercept = np.polyfit(x[keep], y[keep], 1)
+        assert fit.loo_errors[i] == pytest.approx(intercept + slope * x[i] - y[i], rel=1e-10)
+
+
+def test_fewer_than_three_cycles_are_refused():
+    with pytest.raises(pf.SettingsError, match="at least three cycles"):
+        pf.fit_precursor([1.0, 2.0], [80.0, 150.0])
+
+
+def test_calibration_csv(tmp_path):
+    path = tmp_path / "cal.csv"
+    path.write_text("cycle,proxy,next_amplitude,source\n21,2.1,160,invented\n22,1.9,120,invented\n")
+    pairs = read_calibration(path)
+    assert pairs[0] == {"cycle": "21", "proxy": 2.1, "next_amplitude": 160.0, "source": "invented"}
+    path.write_text("cycle,proxy\n21,2.1\n")
+    with pytest.raises(pf.PolarfluxError, match="cal.csv: missing column.*next_amplitude"):
+        read_calibration(path)
+    path.write_text("cycle,proxy,next_amplitude\n21,strong,160\n")
+    with pytest.raises(pf.PolarfluxError, match="cal.csv: line 2"):
+        read_calibration(path)
+
+
+def test_rise_time_shortens_for_stronger_cycles():
+    weak, strong = rise_time_years([60.0, 200.0])  # the Waldmeier effect in the HWR shape
+    assert 3.0 < strong < weak < 6.0
+
+
+@pytest.fixture(scope="module")
+def hindcast_scenario(tmp_path_factory):
+    from polarflux.synthetic import settings_for, write_scenario
+
+    folder = tmp_path_factory.mktemp("hindcast")
+    truth = write_scenario(folder, settings_for("low", cycles=5, seed=31))
+    record = pf.measure_archive([folder / "maps"])
+    t, v = pf.read_sunspots(folder / "sunspots.csv")
+    return folder, truth, record, t, v
+
+
+def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
+    folder, truth, record, t, v = hindcast_scenario
+    start = 2051.0
+    targets = [c for c in truth["cycles"][3:]] + [truth["next_cycle"]]
+    inside, errors = 0, []
+    for target in targets:
+        result = forecast_from_record(record, t, v, as_of=start + target["start_years"] - 2.0, members=120, seed=2)
+        amp = result["forecast"]["amplitude"]
+        errors.append(amp["median"] - target["amplitude"])
+        inside += amp["low95"] <= target["amplitude"] <= amp["high95"]
+        assert result["calibration"]["slope"] > 0  # stronger polar field, stronger next cycle
+        assert "official space-weather forecasts" in result["caution"]
+        assert "transport ensemble" in result["projection"]["method"]
+    assert inside / len(targets) >= 0.9, errors
+
+
+def test_dipole_and_mean_field_forecasts_agree(hindcast_scenario):
+    folder, truth, record, t, v = hindcast_scenario
+    as_of = 2051.0 + truth["next_cycle"]["start_years"] - 2.0
+    a = forecast_from_record(record, t, v, proxy="axial_dipole", as_of=as_of, members=120)["forecast"]["amplitude"]
+    b = forecast_from_record(record, t, v, proxy="mean_field", as_of=as_of, members=120)["forecast"]["amplitude"]
+    assert a["low68"] <= b["high68"] and b["low68"] <= a["high68"]
+
+
+def test_forecast_command(hindcast_scenario, tmp_path, capsys):
+    from polarflux.cli import main
+
+    folder, truth, record, t, v = hindcast_scenario
+    path = tmp_path / "record.nc"
+    pf.write_record(record, path)
+    assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--members", "40"]) == 0
+    out = capsys.readouterr().out
+    assert "next cycle amplitude" in out and "95 %" in out and "hindcast errors" in out
+    assert "official space-weather forecasts" in out
+    saved = json.loads((tmp_path / "record_forecast.json").read_text())
+    assert {"calibration", "projection", "forecast", "caution"} <= set(saved)
+    assert (tmp_path / "record_forecast_fan.png").stat().st_size > 10_000
+    assert (tmp_path / "record_forecast_calibration.png").exists()
+    assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv")]) == 2  # no silent overwrite
