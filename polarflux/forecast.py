@@ -15,7 +15,10 @@ Before the minimum the polar field is not yet final. The latest map's longitude
 average (polar gaps filled as ``measure_caps(fill="profile")`` does, scaled onto
 the record's reference instrument) is evolved by an ensemble of axisymmetric
 surface flux transport models (:class:`~polarflux.transport.TransportEnsemble`)
-to each member's date of minimum. Members draw the diffusivity (250-600 km^2/s),
+to each member's date of minimum. The projected proxy is scaled by the ratio of
+the map's measured proxy in the record to the model's proxy at the start, so that
+it carries the record's conventions (fill, grid, hidden pole) that the
+calibration was made with. Members draw the diffusivity (250-600 km^2/s),
 the peak flow speed (8-15 m/s), the decay time (5-10 years, or none) and the date
 of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years, not
 before the next rotation). The flux the declining cycle will still emerge is not
@@ -361,7 +364,11 @@ def _latest_profile(record, merged, as_of_ns, bases=("",)):
         profile = np.nanmean(values, axis=1)
         profile = np.where(np.isfinite(profile), profile, 0.0)
         scale = factors.get(str(record["instrument"].values[i]), 1.0)
-        return profile * scale, m.lat_edges, path, times[i]
+        # the record's own measures of this map, on the reference scale: the projection is
+        # anchored to them so that it speaks the calibration's language (same fill, same grid)
+        measured = {"axial_dipole": abs(float(record["axial_dipole"].values[i])) * scale,
+                    "mean_field": 0.5 * float(np.sum(np.abs(record["mean_field"].values[i]))) * scale}
+        return profile * scale, m.lat_edges, path, times[i], measured
     return None
 
 
@@ -418,11 +425,16 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     latest = _latest_profile(past, merged, as_of_ns, bases)
     if latest is not None:
-        profile, edges, path, when = latest
+        profile, edges, path, when, measured = latest
         now = float(to_decimal_year(np.array([when]))[0][0])
         projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
                                         cap_latitude=float(record.attrs.get("cap_deg", 60.0)))
-        projection_kind = f"transport ensemble from {path}"
+        start = projection["now"]
+        model_now = {"axial_dipole": abs(start["axial_dipole"]),
+                     "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
+        if model_now[proxy] > 0 and measured[proxy] > 0:
+            projection[proxy] = np.abs(projection[proxy]) * (measured[proxy] / model_now[proxy])
+        projection_kind = f"transport ensemble from {path}, anchored to its measured {proxy}"
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
         values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
                         else np.nanmean(np.abs(merged["mean_field_corrected"].values), axis=1))
