@@ -59,10 +59,15 @@ def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
     ax.plot(times, ds["axial_dipole"].values, color="0.35", linestyle=":", linewidth=1.0, label="axial dipole")
     if truth is not None:
         ax.plot([], [], color="black", linewidth=0.6, label="truth (noise-free)")
+    return _finish(fig, ax, "mean radial field (G)", "Polar-cap mean field", caption)
+
+
+def _finish(fig, ax, ylabel: str, title: str, caption: str | None):
+    """Zero line, time axis label, legend outside on the right, caption: the look of the field plots."""
     ax.axhline(0.0, color="0.6", linewidth=0.8)
     ax.set_xlabel("time (UTC)")
-    ax.set_ylabel("mean radial field (G)")
-    ax.set_title("Polar-cap mean field")
+    ax.set_ylabel(ylabel)
+    ax.set_title(title)
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
     if caption:
         _add_caption(fig, caption)
@@ -113,14 +118,8 @@ def plot_record_events(record, events: dict | None = None, ax=None, caption: str
         for k, m in enumerate(events["minima"]):
             when = from_decimal_year(np.array([m["time"]]), as_dt)[0]
             ax.axvline(when, color="0.4", linestyle=":", linewidth=1.2, label="cycle minimum" if k == 0 else None)
-    ax.axhline(0.0, color="0.6", linewidth=0.8)
-    ax.set_xlabel("time (UTC)")
-    ax.set_ylabel("mean radial field poleward of the cap (G)")
-    ax.set_title("Polar-field record: reversals and minima")
-    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
-    if caption:
-        _add_caption(fig, caption)
-    return fig
+    return _finish(fig, ax, "mean radial field poleward of the cap (G)", "Polar-field record: reversals and minima",
+                   caption)
 
 
 def _cycle_curves(amplitudes, minima, times):
