@@ -458,7 +458,9 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
             "loo_rms": fit.loo_rms,
         },
         "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
-                       "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"]},
+                       "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"],
+                       **{f"{name}_at_minimum": _summary(projection[name])
+                          for name in ("north", "south", "axial_dipole") if name in projection}},
         "forecast": {"amplitude": result["amplitude"], "maximum_time": result["maximum_time"]},
         "samples": result["samples"],
         "fit": fit,

@@ -96,6 +96,8 @@ def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
         assert result["calibration"]["slope"] > 0  # stronger polar field, stronger next cycle
         assert "official space-weather forecasts" in result["caution"]
         assert "transport ensemble" in result["projection"]["method"]
+        projected = result["projection"]
+        assert projected["north_at_minimum"]["median"] * projected["south_at_minimum"]["median"] < 0
     assert inside / len(targets) >= 0.9, errors
 
 
