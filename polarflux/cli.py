@@ -6,6 +6,8 @@ import argparse
 import sys
 from pathlib import Path
 
+import numpy as np
+
 from ._progress import Progress
 from ._version import __version__
 from .errors import PolarfluxError
@@ -18,7 +20,9 @@ _DEMO_MARKER = ".polarflux-demo"
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="polarflux",
-        description="Polar-cap magnetic flux from Carrington-rotation synoptic maps.",
+        description="Polar magnetic fields from Carrington-rotation synoptic maps: measure an archive, read "
+        "the record, evolve the field with surface flux transport, and forecast the next solar cycle "
+        "(probabilistic; operations follow the official space-weather forecasts).",
     )
     parser.add_argument("--version", action="version", version=f"polarflux {__version__}")
     commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
@@ -86,6 +90,33 @@ def build_parser() -> argparse.ArgumentParser:
     forecast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without suffix + _forecast)")
     forecast.add_argument("--force", action="store_true", help="overwrite existing outputs")
 
+    plot = commands.add_parser(
+        "plot",
+        help="draw one figure: polar, butterfly, map, fan or calibration",
+        description="Draw one figure. polar: the merged polar-field record with reversals, minima and "
+        "instrument eras (INPUT: a record); butterfly: longitude-averaged field against time and latitude "
+        "(INPUT: a record whose maps are readable, or a transport run .nc); map: one synoptic map with the "
+        "cap boundaries (INPUT: a FITS map); fan and calibration: the forecast (INPUT: a record, with "
+        "--sunspots).",
+    )
+    plot.add_argument("kind", choices=("polar", "butterfly", "map", "fan", "calibration"))
+    plot.add_argument("input", metavar="INPUT", help="a record (.nc/.csv), a transport run (.nc) or a FITS map")
+    plot.add_argument("--out", required=True, metavar="FILE", help="FILE.png, FILE.pdf or FILE.svg")
+    plot.add_argument("--sunspots", metavar="FILE.csv", help="sunspot numbers (polar: minima; fan, calibration)")
+    plot.add_argument("--cap", type=float, default=60.0, metavar="DEG", help="cap boundary for 'map' (default: 60)")
+    plot.add_argument("--force", action="store_true", help="overwrite an existing output")
+
+    report = commands.add_parser(
+        "report",
+        help="write the one-page report: record, events, forecast, caution and figures",
+        description="Write one self-contained HTML page with the record summary, the cross-calibration, "
+        "the events table, the forecast with its intervals, the caution, and every figure embedded.",
+    )
+    report.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    report.add_argument("--sunspots", metavar="FILE.csv", help="sunspot numbers (minima and the forecast)")
+    report.add_argument("--out", required=True, metavar="FILE.html", help="the report page")
+    report.add_argument("--force", action="store_true", help="overwrite an existing output")
+
     synth = commands.add_parser(
         "synth",
         help="write the invented multi-cycle scenario: synoptic maps plus their truth",
@@ -98,9 +129,10 @@ def build_parser() -> argparse.ArgumentParser:
 
     demo = commands.add_parser(
         "demo",
-        help="generate (or reuse) the invented scenario and measure its whole archive",
-        description="Generate the invented scenario (or reuse it), measure every map, and save the record "
-        "and a figure of the polar fields.",
+        help="generate (or reuse) the invented scenario, measure it, read the record, forecast, report",
+        description="Generate the invented scenario (or reuse it), measure every map, read the record, "
+        "forecast the next cycle from two years before its minimum, and write the report and every "
+        "figure, each beside the scenario's truth.",
     )
     demo.add_argument("--out", default="polarflux-demo", metavar="DIR",
                       help="folder for the scenario and results (default: %(default)s)")
@@ -147,6 +179,10 @@ def main(argv: list[str] | None = None) -> int:
             return _events(args, parser)
         if args.command == "forecast":
             return _forecast(args, parser)
+        if args.command == "plot":
+            return _plot(args, parser)
+        if args.command == "report":
+            return _report(args, parser)
     except PolarfluxError as exc:
         print(f"polarflux: error: {exc}", file=sys.stderr)
         return EXIT_USAGE
@@ -278,7 +314,6 @@ def _events(args, parser) -> int:
 
 
 def _forecast(args, parser) -> int:
-    import numpy as np
 
     from ._io import check_writable
     from .events import read_sunspots
@@ -350,8 +385,91 @@ def _forecast_text(result: dict) -> str:
     return "\n".join(lines)
 
 
+def _bases(path: Path) -> tuple[str, ...]:
+    """Folders against which a record's relative map paths are tried: here, beside it, above it."""
+    return ("", str(path.parent), str(path.parent.parent))
+
+
+def _plot(args, parser) -> int:
+    from ._io import check_writable
+    from .report import analyse, figures, save_figure
+
+    out = Path(args.out)
+    if out.suffix.lower() not in (".png", ".pdf", ".svg"):
+        parser.error(f"--out {out}: figures are written as .png, .pdf or .svg")
+    check_writable(out, args.force)
+    source = Path(args.input)
+    if not source.exists():
+        parser.error(f"{source}: no such file")
+    caption = f"polarflux plot {args.kind}: {source}"
+    if args.kind == "map":
+        from .maps import read_map
+        from .plots import plot_map
+
+        fig = plot_map(read_map(source), cap_latitude=args.cap, caption=caption)
+    elif args.kind == "butterfly" and _is_transport_run(source):
+        import xarray as xr
+
+        from .plots import plot_butterfly
+
+        with xr.open_dataset(source) as run:
+            br = run["br"].values
+            profiles = br.mean(axis=-1) if br.ndim == 3 else br
+            edges = np.sin(np.deg2rad(np.linspace(-90.0, 90.0, run.sizes["lat"] + 1)))
+            fig = plot_butterfly(run["time"].values, edges, profiles, caption=caption,
+                                 title="Magnetic butterfly diagram (transport run)")
+    else:
+        from .events import read_sunspots
+        from .record import read_record
+
+        if args.kind in ("fan", "calibration") and not args.sunspots:
+            parser.error(f"plot {args.kind} needs --sunspots FILE.csv")
+        sunspots = read_sunspots(args.sunspots) if args.sunspots else None
+        analysis = analyse(read_record(source), sunspots, bases=_bases(source))
+        made = figures(analysis, kinds=(args.kind,), caption=caption)
+        if args.kind not in made:
+            reason = analysis["forecast_error"] or "no readable maps in the record"
+            raise PolarfluxError(f"{source}: cannot draw '{args.kind}': {reason}")
+        fig = made[args.kind]
+    save_figure(fig, out, force=args.force)
+    print(f"written to {out}")
+    return EXIT_OK
+
+
+def _is_transport_run(path: Path) -> bool:
+    if path.suffix.lower() != ".nc":
+        return False
+    import xarray as xr
+
+    with xr.open_dataset(path) as ds:
+        return "br" in ds and "lat" in ds.dims
+
+
+def _report(args, parser) -> int:
+    from ._io import check_writable
+    from .events import read_sunspots
+    from .record import read_record
+    from .report import analyse, figures, write_report
+
+    out = Path(args.out)
+    if out.suffix.lower() not in (".html", ".htm"):
+        parser.error(f"--out {out}: the report is an .html page")
+    check_writable(out, args.force)
+    record_path = Path(args.record)
+    if not record_path.exists():
+        parser.error(f"{record_path}: no such record")
+    sunspots = read_sunspots(args.sunspots) if args.sunspots else None
+    analysis = analyse(read_record(record_path), sunspots, bases=_bases(record_path))
+    figs = figures(analysis, caption=f"polarflux report: {record_path}")
+    write_report(out, analysis, figs, title=f"Polar-field report: {record_path.name}", source=str(record_path),
+                 force=args.force)
+    print(f"report with {len(figs)} figures written to {out}")
+    if analysis["forecast"] is not None:
+        print("caution: " + analysis["forecast"]["caution"])
+    return EXIT_OK
+
+
 def _date(year: float) -> str:
-    import numpy as np
 
     from .events import from_decimal_year
 
@@ -489,58 +607,26 @@ def _demo(args, parser) -> int:
           f"north {float(last['mean_field'].sel(hemisphere='north')):.2f} G, "
           f"south {float(last['mean_field'].sel(hemisphere='south')):.2f} G, "
           f"axial dipole {float(last['axial_dipole']):.2f} G")
-    events_figure, events_json = _demo_events(ds, scenario, folder)
-    forecast_json = _demo_forecast(ds, scenario, folder, truth)
-    print(f"outputs: record {csv_path} and {nc_path}; figures {figure} and {events_figure}; "
-          f"events {events_json}; forecast {forecast_json} (+ _fan.png, _calibration.png); "
+    report = _demo_analysis(ds, scenario, folder, truth)
+    print(f"outputs: record {csv_path} and {nc_path}; figures {figure} and {folder / 'figure_*.png'}; "
+          f"events {folder / 'polar_events.json'}; forecast {folder / 'forecast.json'}; report {report}; "
           f"truth {scenario / 'truth.json'}")
     return EXIT_OK if ds.attrs["failed_count"] == 0 else EXIT_SOME_FAILED
 
 
-def _demo_forecast(ds, scenario: Path, folder: Path, truth: dict):
-    """Forecast the cycle after the archive from the maps two years before its minimum, beside the truth."""
-    import numpy as np
-
-    from .events import read_sunspots, to_decimal_year
-    from .forecast import forecast_from_record
-
-    start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
-    t, v = read_sunspots(scenario / "sunspots.csv")
-    target = truth.get("next_cycle") or truth["cycles"][-1]
-    as_of = start + target["start_years"] - 2.0
-    try:
-        result = forecast_from_record(ds, t, v, as_of=as_of, members=300, seed=0)
-    except PolarfluxError as exc:
-        print(f"forecast skipped: {exc}")
-        return None
-    print(_forecast_text(result))
-    print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
-          f"{_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
-          f"{target['random_factor']:.3f})")
-    outputs = {"json": folder / "forecast.json", "fan": folder / "forecast_fan.png",
-               "calibration": folder / "forecast_calibration.png"}
-    _write_forecast(result, t, v, outputs, True, caption=f"polarflux demo: invented scenario; forecast as of "
-                    f"{_date(as_of)}; dotted line: the truth", truth_amplitude=target["amplitude"])
-    return outputs["json"]
-
-
-def _demo_events(ds, scenario: Path, folder: Path):
-    """The record analysis on the demo record, beside the scenario's truth."""
+def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
+    """Events, forecast and report of the demo record, each beside the scenario's truth."""
     import json
 
-    import numpy as np
-
     from ._io import atomic_path
-    from .calibration import merge_instruments
-    from .events import read_sunspots, record_events, to_decimal_year
-    from .plots import plot_record_events
+    from .events import read_sunspots, to_decimal_year
+    from .report import analyse, figures, save_figure, write_report
 
-    merged = merge_instruments(ds)
-    found = record_events(merged, *read_sunspots(scenario / "sunspots.csv"))
-    found["scale_factors"] = json.loads(merged.attrs["scale_factors"])
-    found["band_factors_needed"] = bool(merged.attrs["band_factors_needed"])
-    truth = json.loads((scenario / "truth.json").read_text())
     start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
+    target = truth.get("next_cycle") or truth["cycles"][-1]
+    as_of = start + target["start_years"] - 2.0  # forecast from the maps two years before the minimum
+    analysis = analyse(ds, read_sunspots(scenario / "sunspots.csv"), as_of=as_of)
+    found = analysis["events"]
     print(_events_table(found))
     scales = {i["name"]: i["scale"] for i in truth["instruments"]}
     for f in found["scale_factors"]:
@@ -553,20 +639,30 @@ def _demo_events(ds, scenario: Path, folder: Path):
                 nearest = min(found_times, key=lambda x: abs(x - c[f"{h}_reversal_years"]))
                 print(f"truth: cycle {c['cycle']} {h} reversal {_date(start + c[f'{h}_reversal_years'])}, "
                       f"found {_date(start + nearest)}")
-    events_json = folder / "polar_events.json"
-    with atomic_path(events_json, force=True) as tmp:
+    with atomic_path(folder / "polar_events.json", force=True) as tmp:
         tmp.write_text(json.dumps(found, indent=1, default=float), encoding="utf-8")
-    fig = plot_record_events(merged, found, caption=f"polarflux demo: invented scenario in {scenario}; "
-                             "instruments merged onto the reference scale, B0 swing corrected")
-    figure = folder / "polar_events.png"
-    fig.savefig(figure, dpi=120)
-    return figure, events_json
+    result = analysis["forecast"]
+    if result is not None:
+        print(_forecast_text(result))
+        print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
+              f"{_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
+              f"{target['random_factor']:.3f})")
+        public = {k: v for k, v in result.items() if k not in ("samples", "fit")}
+        with atomic_path(folder / "forecast.json", force=True) as tmp:
+            tmp.write_text(json.dumps(public, indent=1, default=float), encoding="utf-8")
+    else:
+        print(f"no forecast: {analysis['forecast_error']}")
+    figs = figures(analysis, caption="polarflux demo: invented scenario (no real data)",
+                   truth_amplitude=target["amplitude"])
+    for kind, fig in figs.items():
+        save_figure(fig, folder / f"figure_{kind}.png", force=True)
+    return write_report(folder / "report.html", analysis, figs, force=True, source=str(folder / "polar_record.nc"),
+                        title="Polar-field report: the invented demo scenario (no real data)")
 
 
 def _truth_series(path: Path) -> dict:
     import csv
 
-    import numpy as np
 
     with open(path, newline="", encoding="utf-8") as handle:
         rows = list(csv.DictReader(handle))
@@ -589,3 +685,26 @@ def _cycles_table(truth: dict) -> str:
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
+
+
+def command_reference() -> str:
+    """The command reference in Markdown, made from the parser itself (docs/cli.md is this text)."""
+    import os
+
+    parser = build_parser()
+    columns = os.environ.get("COLUMNS")
+    os.environ["COLUMNS"] = "100"  # argparse wraps to the terminal: fix the width so the text is stable
+    try:
+        sections = ["# Command reference", "",
+                    "Generated from the `polarflux` parser by `python docs/make_cli_reference.py`; "
+                    "a test fails when this page and the parser disagree.", "",
+                    "```text", parser.format_help().rstrip(), "```", ""]
+        for action in parser._subparsers._group_actions:  # noqa: SLF001 - argparse keeps them here
+            for name, sub in action.choices.items():
+                sections += [f"## polarflux {name}", "", "```text", sub.format_help().rstrip(), "```", ""]
+    finally:
+        if columns is None:
+            os.environ.pop("COLUMNS", None)
+        else:
+            os.environ["COLUMNS"] = columns
+    return "\n".join(sections)

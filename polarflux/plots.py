@@ -4,7 +4,19 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["plot_polar_fields", "plot_record_events", "plot_forecast_fan", "plot_calibration", "HEMISPHERE_STYLE"]
+__all__ = [
+    "plot_polar_fields",
+    "plot_record_events",
+    "plot_forecast_fan",
+    "plot_calibration",
+    "plot_butterfly",
+    "plot_map",
+    "butterfly_profiles",
+    "instrument_eras",
+    "signed_colormap",
+    "HEMISPHERE_STYLE",
+    "SIGNED_COLOURS",
+]
 
 #: Line colours per hemisphere: a blue and an orange that stay apart for colour-blind
 #: readers; line styles and markers keep them apart in grey-scale print too.
@@ -82,7 +94,7 @@ def _add_caption(fig, caption: str) -> None:
     fig.text(0.01, 0.008, caption, fontsize="x-small", color="0.35", ha="left", va="bottom")
 
 
-def plot_record_events(record, events: dict | None = None, ax=None, caption: str | None = None):
+def plot_record_events(record, events: dict | None = None, ax=None, caption: str | None = None, eras=None):
     """Polar mean fields of a merged record, raw and smoothed, with reversals and minima marked.
 
     Parameters
@@ -92,11 +104,17 @@ def plot_record_events(record, events: dict | None = None, ax=None, caption: str
     events : dict, optional
         From :func:`polarflux.events.record_events`; reversals are drawn as vertical
         lines in each hemisphere's colour and style, minima as grey dotted lines.
+    eras : dict, optional
+        ``{instrument: (first time, last time)}`` (datetime64): each instrument's era is
+        shaded (alternating grey tones and hatches), the overlaps darker.
     """
     from .events import RECORD_MIN_COUNT, from_decimal_year, running_mean
 
     fig, ax = _new_axes(ax)
     times = record["time"].values
+    for k, (name, (first, last)) in enumerate((eras or {}).items()):
+        ax.axvspan(first, last, color="0.5", alpha=0.08 + 0.04 * (k % 2), hatch="//" if k % 2 else None,
+                   linewidth=0, label=f"{name} era")
     variable = (events or {}).get("variable", "mean_field_corrected")
     if variable not in record:
         variable = "mean_field"
@@ -197,3 +215,134 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
     if caption:
         _add_caption(fig, caption)
     return fig
+
+
+# --------------------------------------------------------------------------- signed-field images
+
+#: The project's colour scale for signed field, used symmetric about zero: dark blue
+#: (negative) through a near-white zero to orange (positive). Blue against orange stays
+#: apart for the common colour-vision deficiencies, and the two ends differ in lightness
+#: (dark blue against mid orange), so the sign survives grey-scale print too.
+SIGNED_COLOURS = ("#0b2a59", "#3d6fb0", "#9cc0e6", "#f4f4f4", "#f6c48e", "#e58a33", "#b4520e")
+
+
+def signed_colormap():
+    """The signed-field colour map (see :data:`SIGNED_COLOURS`)."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list("polarflux_signed", SIGNED_COLOURS, N=256)
+
+
+def _symmetric_limit(values, quantile: float = 98.0) -> float:
+    finite = np.abs(np.asarray(values)[np.isfinite(values)])
+    return float(np.percentile(finite, quantile)) if finite.size else 1.0
+
+
+def butterfly_profiles(record, nrows: int = 90, bases=("",)):
+    """Longitude-averaged radial field per map of a record, on ``nrows`` equal sine-latitude rows.
+
+    Returns (times, sine-latitude edges, profiles[time, row]); maps that cannot be read are skipped.
+    """
+    import os
+
+    from .errors import PolarfluxError
+    from .geometry import regrid_conservative
+    from .maps import read_map
+
+    s_edges = np.linspace(-1.0, 1.0, nrows + 1)
+    lat_edges = np.rad2deg(np.arcsin(s_edges))
+    times, rows = [], []
+    for i, source in enumerate(record["source"].values):
+        paths = [os.path.join(b, str(source)) for b in bases]
+        path = next((p for p in paths if os.path.exists(p)), None)
+        if path is None:
+            continue
+        try:
+            m = read_map(path)
+        except PolarfluxError:
+            continue
+        finite = np.isfinite(m.values)
+        counts = finite.sum(axis=1)
+        sums = np.where(finite, m.values, 0.0).sum(axis=1, dtype=np.float64)
+        mean = np.divide(sums, counts, out=np.full(counts.shape, np.nan), where=counts > 0)
+        seen = np.isfinite(mean)
+        profile = regrid_conservative(np.where(seen, mean, 0.0)[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])
+        cover = regrid_conservative(seen.astype(float)[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])
+        with np.errstate(invalid="ignore", divide="ignore"):
+            rows.append(np.where(cover[:, 0] > 0.5, profile[:, 0] / cover[:, 0], np.nan))
+        times.append(record["time"].values[i])
+    return np.array(times, dtype="datetime64[ns]"), s_edges, np.array(rows)
+
+
+def plot_butterfly(times, sine_edges, profiles, ax=None, caption: str | None = None, title: str | None = None):
+    """Magnetic butterfly diagram: longitude-averaged radial field against time and sine latitude.
+
+    Parameters
+    ----------
+    times : datetime64 array (or decimal years)
+    sine_edges : array, len nrows + 1
+        Row edges in sin(latitude).
+    profiles : array (time, row)
+        Longitude-averaged radial field, G; NaN where there is no data.
+    """
+    import matplotlib.dates as mdates
+
+    fig, ax = _new_axes(ax, size=(11, 4.8))
+    profiles = np.asarray(profiles, dtype=np.float64)
+    limit = _symmetric_limit(profiles)
+    t = np.asarray(times)
+    if np.issubdtype(t.dtype, np.datetime64):
+        x = mdates.date2num(t.astype("datetime64[ms]").astype(object))
+        step = np.median(np.diff(x)) if x.size > 1 else 27.0
+        x_edges = np.concatenate([x - step / 2, [x[-1] + step / 2]])
+        ax.xaxis_date()
+        xlabel = "time (UTC)"
+    else:
+        step = np.median(np.diff(t)) if t.size > 1 else 0.07
+        x_edges = np.concatenate([t - step / 2, [t[-1] + step / 2]])
+        xlabel = "time (years)"
+    mesh = ax.pcolormesh(x_edges, sine_edges, profiles.T, cmap=signed_colormap(), vmin=-limit, vmax=limit,
+                         shading="flat")
+    colorbar = fig.colorbar(mesh, ax=ax, pad=0.01)
+    colorbar.set_label("longitude-averaged radial field (G)")
+    ticks = np.array([-90, -60, -30, 0, 30, 60, 90])
+    ax.set_yticks(np.sin(np.deg2rad(ticks)))
+    ax.set_yticklabels([f"{v:d}°" for v in ticks])
+    ax.set_ylabel("latitude (sine-latitude scale)")
+    ax.set_xlabel(xlabel)
+    ax.set_title(title or "Magnetic butterfly diagram")
+    if caption:
+        _add_caption(fig, caption)
+    return fig
+
+
+def plot_map(m, ax=None, cap_latitude: float = 60.0, caption: str | None = None):
+    """Quick look at one synoptic map on a sine-latitude axis, with the polar-cap boundaries drawn."""
+    fig, ax = _new_axes(ax, size=(10, 4.6))
+    values = m.values
+    limit = _symmetric_limit(values)
+    mesh = ax.pcolormesh(m.lon_edges, np.sin(np.deg2rad(m.lat_edges)), values, cmap=signed_colormap(),
+                         vmin=-limit, vmax=limit, shading="flat")
+    colorbar = fig.colorbar(mesh, ax=ax, pad=0.01)
+    colorbar.set_label("radial field (G)")
+    for sign in (1, -1):
+        ax.axhline(sign * np.sin(np.deg2rad(cap_latitude)), color="black", linestyle="--", linewidth=1.0,
+                   label=f"polar-cap boundary (±{cap_latitude:g}°)" if sign > 0 else None)
+    ticks = np.array([-90, -60, -30, 0, 30, 60, 90])
+    ax.set_yticks(np.sin(np.deg2rad(ticks)))
+    ax.set_yticklabels([f"{v:d}°" for v in ticks])
+    ax.set_ylabel("latitude (sine-latitude scale)")
+    ax.set_xlabel("Carrington longitude (deg)")
+    when = "" if m.time is None else f", {m.time.utc.isot[:10]}"
+    rotation = "" if m.carrington_rotation is None else f"CR {m.carrington_rotation}"
+    ax.set_title(f"Synoptic map {rotation}{when} {m.instrument}".strip())
+    ax.legend(loc="upper right", fontsize="x-small")
+    _add_caption(fig, caption or f"source: {m.source}")
+    return fig
+
+
+def instrument_eras(record) -> dict:
+    """``{instrument: (first map time, last map time)}`` of a measured record."""
+    names = np.array([str(x) for x in record["instrument"].values])
+    times = record["time"].values
+    return {name: (times[names == name].min(), times[names == name].max()) for name in dict.fromkeys(names)}
