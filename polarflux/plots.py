@@ -155,33 +155,36 @@ def _cycle_curves(amplitudes, minima, times):
 
 def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, caption: str | None = None,
                       truth_amplitude: float | None = None):
-    """Fan chart: the sunspot record, then the forecast cycle's 68 % and 95 % ranges (decimal years)."""
-    from .events import smooth_13_month
+    """Fan chart: the sunspot record, then the forecast cycle's 68 % and 95 % ranges, against dates."""
+    from .events import from_decimal_year, smooth_13_month
+
+    def dates(years):
+        return from_decimal_year(np.asarray(years, dtype=np.float64), True)
 
     fig, ax = _new_axes(ax)
     t = np.asarray(sunspot_times)
     v = np.asarray(sunspot_values)
-    history = t >= result["as_of"] - 25.0
-    ax.plot(t[history], v[history], color="0.6", linewidth=0.6, label="sunspot number")
+    history = (t >= result["as_of"] - 25.0) & (t <= result["as_of"])  # what the forecast knew
+    ax.plot(dates(t[history]), v[history], color="0.6", linewidth=0.6, label="sunspot number")
     smooth = smooth_13_month(v) if np.median(np.diff(t)) < 2 / 12 else v
-    ax.plot(t[history], smooth[history], color="black", linewidth=1.2, label="13-month smoothed")
+    ax.plot(dates(t[history]), smooth[history], color="black", linewidth=1.2, label="13-month smoothed")
     samples = result["samples"]
     minima = np.asarray(samples.get("minimum_time", samples["maximum_time"] - 4.0))
     future = np.linspace(result["as_of"], result["as_of"] + 14.0, 240)
     count = min(400, samples["amplitude"].size)
     curves = _cycle_curves(samples["amplitude"][:count], minima[:count], future)
     low95, low68, mid, high68, high95 = np.percentile(curves, [2.5, 16, 50, 84, 97.5], axis=0)
-    ax.fill_between(future, low95, high95, color="#1f5fa6", alpha=0.18, label="95 % range")
-    ax.fill_between(future, low68, high68, color="#1f5fa6", alpha=0.35, label="68 % range")
-    ax.plot(future, mid, color="#1f5fa6", linewidth=1.5, label="median")
+    ax.fill_between(dates(future), low95, high95, color="#1f5fa6", alpha=0.18, label="95 % range")
+    ax.fill_between(dates(future), low68, high68, color="#1f5fa6", alpha=0.35, label="68 % range")
+    ax.plot(dates(future), mid, color="#1f5fa6", linewidth=1.5, label="median")
     amp = result["forecast"]["amplitude"]
-    ax.errorbar([result["forecast"]["maximum_time"]["median"]], [amp["median"]],
+    ax.errorbar(dates([result["forecast"]["maximum_time"]["median"]]), [amp["median"]],
                 yerr=[[amp["median"] - amp["low95"]], [amp["high95"] - amp["median"]]], fmt="o",
                 color="#c45a12", capsize=3, label="next maximum (median, 95 %)")
     if truth_amplitude is not None:
         ax.axhline(truth_amplitude, color="#c45a12", linestyle=":", linewidth=1.0, label="truth amplitude")
-    ax.axvline(result["as_of"], color="0.4", linestyle="--", linewidth=0.8, label="forecast date")
-    ax.set_xlabel("time (decimal year)")
+    ax.axvline(dates([result["as_of"]])[0], color="0.4", linestyle="--", linewidth=0.8, label="forecast date")
+    ax.set_xlabel("time (UTC)")
     ax.set_ylabel("sunspot number")
     ax.set_title("Next-cycle forecast (probabilistic; see the caution)")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)

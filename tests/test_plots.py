@@ -42,7 +42,7 @@ def test_every_kind_is_drawn_with_labelled_axes_and_units(drawn):
 
 
 def test_time_axes_carry_dates(drawn):
-    for kind in ("polar", "butterfly"):
+    for kind in ("polar", "butterfly", "fan"):
         ax = drawn[kind].axes[0]
         assert "UTC" in ax.get_xlabel()
         labels = [t.get_text() for t in ax.get_xticklabels()]
