@@ -28,15 +28,13 @@ _INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v")
 
 
 def _new_axes(ax, size=(11, 4.8)):
-    import matplotlib
+    """The Axes given, or a new Figure made without pyplot (so nothing keeps it alive once dropped)."""
+    from matplotlib.figure import Figure
 
     if ax is not None:
         return ax.figure, ax
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
-
-    fig, ax = plt.subplots(figsize=size, layout="constrained")
-    return fig, ax
+    fig = Figure(figsize=size, layout="constrained")
+    return fig, fig.add_subplot()
 
 
 def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
