@@ -37,7 +37,13 @@ def build_parser() -> argparse.ArgumentParser:
     measure.add_argument("--out", required=True, metavar="FILE",
                          help="output record: FILE.csv (one row per map) or FILE.nc (netCDF)")
     _add_measure_options(measure)
-    measure.add_argument("--force", action="store_true", help="overwrite an existing output")
+    measure.add_argument("--ledger", metavar="PATH",
+                         help="measurement ledger (SQLite): maps already measured with the same settings are "
+                         "not measured again (default: the user's cache folder; 'none' for no ledger)")
+    measure.add_argument("--dask", metavar="ADDRESS",
+                         help="measure on a dask.distributed cluster: a scheduler address, or 'local'")
+    measure.add_argument("--force", action="store_true",
+                         help="overwrite an existing output (the monthly update: rebuilt from the ledger)")
     measure.add_argument("--quiet", action="store_true", help="no progress bar and no summary line")
 
     transport = commands.add_parser(
@@ -160,7 +166,10 @@ def _add_measure_options(parser: argparse.ArgumentParser) -> None:
                         "'profile' fills them from the observed latitude profile (default: none)")
     parser.add_argument("--field", choices=("radial", "los"), default="radial",
                         help="the maps hold radial or line-of-sight field (default: radial)")
-    parser.add_argument("--jobs", type=int, default=1, metavar="N", help="processes to use (default: 1)")
+    from .record import available_cores
+
+    parser.add_argument("--jobs", type=int, default=available_cores(), metavar="N",
+                        help="processes to use (default: the cores available)")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -222,7 +231,8 @@ def _run_measurement(files, problems, args, label: str, quiet: bool = False):
 
 def _measure(args, parser) -> int:
     from ._io import check_writable
-    from .record import expand_inputs, write_record
+    from .ledger import Ledger, default_ledger_path
+    from .record import expand_inputs, measure_with_ledger, rows_to_dataset, write_record
 
     _check_options(args, parser)
     out = Path(args.out)
@@ -234,13 +244,45 @@ def _measure(args, parser) -> int:
         for failure in problems:
             print(f"polarflux: {failure}", file=sys.stderr)
         parser.error("no input files found")
-    ds, rows = _run_measurement(files, problems, args, "measuring", quiet=args.quiet)
+    if args.ledger and args.ledger.lower() == "none":
+        if args.dask:
+            parser.error("--dask needs a ledger (leave out --ledger none)")
+        ds, rows = _run_measurement(files, problems, args, "measuring", quiet=args.quiet)
+        write_record(ds, out, force=args.force)
+        failed = ds.attrs["failed_count"]
+        if not args.quiet:
+            print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; record written to {out}",
+                  file=sys.stderr)
+        return EXIT_OK if failed == 0 else EXIT_SOME_FAILED
+    ledger_path = Path(args.ledger) if args.ledger else default_ledger_path()
+    progress = Progress(len(files), label="measuring", enabled=None if not args.quiet else False)
+    for failure in problems:
+        progress.message(f"polarflux: {failure}")
+    known_failures = []
+
+    def report(path: str, error: str | None, new: bool) -> None:
+        if error is not None:
+            if new:
+                progress.message(f"polarflux: {error if path in error else f'{path}: {error}'}")
+            else:
+                known_failures.append(path)
+        progress.step(failed=error is not None)
+
+    with Ledger(ledger_path) as ledger:
+        run = measure_with_ledger(files, ledger, args.cap, args.fill, args.field, args.jobs, args.dask,
+                                  on_result=report)
+    progress.close()
+    failures = list(problems) + run.failures
+    ds = rows_to_dataset(run.rows, cap_deg=args.cap, fill=args.fill, field=args.field, failures=failures)
     write_record(ds, out, force=args.force)
-    failed = ds.attrs["failed_count"]
     if not args.quiet:
-        print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; record written to {out}",
-              file=sys.stderr)
-    return EXIT_OK if failed == 0 else EXIT_SOME_FAILED
+        if known_failures:
+            print(f"{len(known_failures)} file(s) failed in earlier runs and were not tried again "
+                  f"(their reasons are in the ledger {ledger_path})", file=sys.stderr)
+        print(f"measured {len(run.rows)} of {len(files)} maps ({run.measured - run.new_failures} new, "
+              f"{run.reused - len(known_failures)} from the ledger), {len(failures)} failed; "
+              f"record written to {out}", file=sys.stderr)
+    return EXIT_OK if not failures else EXIT_SOME_FAILED
 
 
 def _transport(args, parser) -> int:

@@ -33,6 +33,8 @@ __all__ = [
     "measure_file",
     "iter_measurements",
     "measure_archive",
+    "measure_with_ledger",
+    "available_cores",
     "rows_to_dataset",
     "write_record",
     "read_record",
@@ -169,27 +171,145 @@ def _check_settings(cap_latitude, fill: str, field: str, jobs: int) -> float:
     return cap
 
 
+def available_cores() -> int:
+    """Cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _measure_batch(items: list[tuple]) -> list[tuple[str, dict | None, str | None]]:
+    """Measure a batch of maps in a worker; only small rows travel back."""
+    return [_measure_or_fail(item) for item in items]
+
+
+def _dispatch(work: list[tuple], jobs: int, dask: str | None = None) -> Iterator[tuple[str, dict | None, str | None]]:
+    """Results of ``work`` as they complete: serially, in a process pool, or on a dask cluster."""
+    if not work:
+        return
+    if dask:
+        yield from _dispatch_dask(work, jobs, dask)
+        return
+    if jobs == 1 or len(work) < 2:
+        for item in work:
+            yield _measure_or_fail(item)
+        return
+    chunk = max(1, min(16, len(work) // (4 * int(jobs))))
+    with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
+        yield from pool.map(_measure_or_fail, work, chunksize=chunk)
+
+
+def _dispatch_dask(work: list[tuple], jobs: int, address: str):
+    """Batches of maps as dask tasks; each worker process reduces its batch to rows (dask's own guidance:
+    tasks big enough that their overhead stays small, no arrays shipped back, process workers for GIL-bound work).
+    """
+    try:
+        from dask.distributed import Client, LocalCluster, as_completed
+    except ImportError:
+        raise SettingsError("--dask needs the dask extra: pip install 'polarflux[dask]'") from None
+    cluster = None
+    if address == "local":
+        cluster = LocalCluster(n_workers=int(jobs), threads_per_worker=1, processes=True, host="127.0.0.1",
+                               dashboard_address=None)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(address, timeout=30)
+        except OSError as exc:
+            raise SettingsError(f"--dask {address}: cannot reach the scheduler ({exc})") from None
+    try:
+        workers = max(1, len(client.scheduler_info().get("workers", {})) or int(jobs))
+        size = max(1, min(64, len(work) // (4 * workers) or 1))
+        batches = [work[i: i + size] for i in range(0, len(work), size)]
+        futures = client.map(_measure_batch, batches, pure=False)
+        for future in as_completed(futures):
+            yield from future.result()
+            future.release()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
 def iter_measurements(
     paths: Iterable[str],
     cap_latitude=60,
     fill: str = "none",
     field: str = "radial",
     jobs: int = 1,
+    dask: str | None = None,
 ) -> Iterator[tuple[str, dict | None, str | None]]:
-    """Measure maps one by one, yielding ``(path, row, None)`` or ``(path, None, reason)``.
+    """Measure maps, yielding ``(path, row, None)`` or ``(path, None, reason)`` as each completes.
 
-    With ``jobs > 1`` the maps are measured in a pool of processes; results come
-    back in input order and only small rows cross process boundaries.
+    ``jobs > 1`` uses a pool of processes; ``dask`` ("local" or a scheduler address)
+    a dask.distributed cluster. Only small rows cross process boundaries.
     """
     cap = _check_settings(cap_latitude, fill, field, jobs)
     work = [(os.fspath(p), cap, fill, field) for p in paths]
-    if jobs == 1 or len(work) < 2:
-        for item in work:
-            yield _measure_or_fail(item)
-        return
-    with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
-        chunk = max(1, min(16, len(work) // (4 * int(jobs)) or 1))
-        yield from pool.map(_measure_or_fail, work, chunksize=chunk)
+    yield from _dispatch(work, int(jobs), dask)
+
+
+@dataclass
+class LedgerRun:
+    """What a ledger-backed run did: rows of every input in order, and the failures."""
+
+    rows: list[dict]
+    failures: list[Failure]
+    measured: int
+    reused: int
+    new_failures: int
+
+
+def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "none", field: str = "radial",
+                        jobs: int = 1, dask: str | None = None, on_result=None) -> LedgerRun:
+    """Measure the files the ledger does not know yet, commit each result, and return every input's row.
+
+    ``on_result(path, error_or_None, new)`` is called for each file (``new`` False when
+    the ledger already held it).
+    """
+    from .ledger import settings_key
+
+    cap = _check_settings(cap_latitude, fill, field, jobs)
+    settings = settings_key(cap, fill, field)
+    known: dict[str, tuple] = {}
+    todo, meta, failures = [], {}, []
+    for path in files:
+        try:
+            stat = os.stat(path)
+            digest = ledger.identify(path, stat)
+        except OSError as exc:
+            failures.append(Failure(path, f"{path}: cannot open ({exc.strerror or exc})"))
+            if on_result:
+                on_result(path, failures[-1].reason, True)
+            continue
+        meta[path] = (digest, stat)
+        hit = ledger.lookup(digest, settings)
+        if hit is None:
+            todo.append((path, cap, fill, field))
+        else:
+            known[path] = hit
+            if on_result:
+                on_result(path, hit[1], False)
+    results = dict(known)
+    new_failures = 0
+    for path, row, error in _dispatch(todo, int(jobs), dask):
+        digest, stat = meta[path]
+        ledger.store(digest, settings, path, stat, row, error)
+        results[path] = (row, error)
+        new_failures += error is not None
+        if on_result:
+            on_result(path, error, True)
+    rows = []
+    for path in files:
+        if path not in results:
+            continue
+        row, error = results[path]
+        if error is not None:
+            failures.append(Failure(path, error if path in error else f"{path}: {error}"))
+        else:
+            rows.append({**row, "source": path})
+    return LedgerRun(rows, failures, len(todo), len(known), new_failures)
 
 
 def measure_archive(
@@ -199,6 +319,8 @@ def measure_archive(
     fill: str = "none",
     field: str = "radial",
     progress: Callable[[str, str | None], None] | None = None,
+    ledger=None,
+    dask: str | None = None,
 ):
     """Measure every map and return the record as an ``xarray.Dataset``.
 
@@ -214,6 +336,11 @@ def measure_archive(
         As for :func:`~polarflux.measure.measure_caps` and :func:`~polarflux.maps.read_map`.
     progress : callable, optional
         Called as ``progress(path, error_or_None)`` after each file.
+    ledger : path or Ledger, optional
+        A measurement ledger (:class:`polarflux.ledger.Ledger`): maps it already holds
+        with these settings are not measured again, and new results are committed.
+    dask : str, optional
+        "local" or a dask.distributed scheduler address to measure on.
 
     Returns
     -------
@@ -224,15 +351,26 @@ def measure_archive(
         ``attrs["failed_count"]``.
     """
     files, failures = expand_inputs(paths)
+    cap = as_degrees(cap_latitude, "cap_latitude")
+    if ledger is not None:
+        from .ledger import Ledger
+
+        book = ledger if isinstance(ledger, Ledger) else Ledger(ledger)
+        try:
+            run = measure_with_ledger(files, book, cap, fill, field, jobs, dask,
+                                      on_result=None if progress is None else (lambda p, e, new: progress(p, e)))
+        finally:
+            if book is not ledger:
+                book.close()
+        return rows_to_dataset(run.rows, cap_deg=cap, fill=fill, field=field, failures=failures + run.failures)
     rows = []
-    for path, row, error in iter_measurements(files, cap_latitude, fill, field, jobs):
+    for path, row, error in iter_measurements(files, cap_latitude, fill, field, jobs, dask):
         if error is None:
             rows.append(row)
         else:
             failures.append(Failure(path, error))
         if progress is not None:
             progress(path, error)
-    cap = as_degrees(cap_latitude, "cap_latitude")
     return rows_to_dataset(rows, cap_deg=cap, fill=fill, field=field, failures=failures)
 
 

@@ -79,3 +79,9 @@ def three_cycles(tmp_path_factory):
     folder = tmp_path_factory.mktemp("three_cycles")
     truth = write_scenario(folder, settings_for("low", cycles=3, seed=11))
     return folder, truth
+
+
+@pytest.fixture(autouse=True)
+def _private_cache(tmp_path_factory, monkeypatch):
+    """Every test gets its own cache folder, so the default measurement ledger is never shared."""
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path_factory.mktemp("cache")))

@@ -27,7 +27,7 @@ def test_measure_folder_to_csv(maps, tmp_path, capsys):
     rows = list(csv.DictReader(open(out, newline="")))
     assert len(rows) == 6 and rows[0]["cap_deg"] == "60.0"
     err = capsys.readouterr().err
-    assert "measured 6 of 6 maps, 0 failed" in err
+    assert "measured 6 of 6 maps (6 new, 0 from the ledger), 0 failed" in err
     assert "\r" not in err  # no progress bar when stderr is not a terminal
 
 
@@ -39,7 +39,7 @@ def test_measure_reports_bad_files_and_goes_on(maps, tmp_path, capsys):
     err = capsys.readouterr().err
     assert status == 1
     assert re.search(r"^polarflux: .*bad.fits: not a readable FITS file", err, re.M)
-    assert "measured 6 of 7 maps, 1 failed" in err
+    assert "measured 6 of 7 maps (6 new, 0 from the ledger), 1 failed" in err
     import xarray as xr
 
     with xr.open_dataset(out) as ds:
