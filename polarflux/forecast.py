@@ -48,7 +48,6 @@ import os
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from .errors import PolarfluxError, SettingsError
 
@@ -126,6 +125,8 @@ class PrecursorFit:
 
     def predict(self, x) -> Prediction:
         """Prediction intervals (Student t with ``dof`` degrees of freedom) at proxy value(s) ``x``."""
+        from scipy import stats  # imported here: it costs most of the command's start-up time
+
         design = self._design(x)
         mean = design @ self.coefficients
         se = self.residual_sd * np.sqrt(1.0 + np.einsum("ij,jk,ik->i", design, self._inverse, design))

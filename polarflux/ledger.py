@@ -8,8 +8,10 @@ and the next run resumes where it stopped. Only the process that runs the batch
 writes the ledger; workers only measure.
 
 A file whose path, size and modification time match the ledger is taken to have
-the content recorded (its hash is not computed again); any other file is hashed,
-so a renamed or copied map is recognised by its content.
+the content recorded (its hash is not computed again); any other file is hashed
+(serial runs hash it first, so a renamed or copied map is recognised by its
+content and not measured again; parallel runs hash it in the worker beside the
+measurement, so the main process never becomes the bottleneck).
 """
 
 from __future__ import annotations
@@ -91,13 +93,17 @@ class Ledger:
     def __exit__(self, *exc) -> None:
         self.close()
 
-    def identify(self, path: str, stat: os.stat_result) -> str:
-        """The content hash of ``path``: from the ledger when path, size and mtime match, else computed."""
+    def known_digest(self, path: str, stat: os.stat_result) -> str | None:
+        """The content hash recorded for ``path`` when its size and mtime still match, else None."""
         hit = self._db.execute(
             "SELECT digest FROM measurements WHERE path = ? AND size = ? AND mtime_ns = ? LIMIT 1",
             (path, stat.st_size, stat.st_mtime_ns),
         ).fetchone()
-        return hit[0] if hit else file_digest(path)
+        return hit[0] if hit else None
+
+    def identify(self, path: str, stat: os.stat_result) -> str:
+        """The content hash of ``path``: from the ledger when path, size and mtime match, else computed."""
+        return self.known_digest(path, stat) or file_digest(path)
 
     def lookup(self, digest: str, settings: str):
         """(row dict or None, error or None), or None when this content was not measured with these settings."""

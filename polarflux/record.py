@@ -149,7 +149,7 @@ def measure_file(path: str, cap_latitude: float = 60.0, fill: str = "none", fiel
 
 
 def _measure_or_fail(args: tuple) -> tuple[str, dict | None, str | None]:
-    path, cap, fill, field = args
+    path, cap, fill, field = args[:4]
     try:
         return path, measure_file(path, cap, fill, field), None
     except PolarfluxError as exc:
@@ -179,9 +179,23 @@ def available_cores() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _measure_batch(items: list[tuple]) -> list[tuple[str, dict | None, str | None]]:
+def _measure_and_hash(item: tuple):
+    """Measure one map and, when asked (item[4]), hash its bytes too: (path, row, error, digest)."""
+    path, row, error = _measure_or_fail(item)
+    digest = None
+    if len(item) > 4 and item[4]:
+        from .ledger import file_digest
+
+        try:
+            digest = file_digest(path)
+        except OSError:
+            digest = None
+    return path, row, error, digest
+
+
+def _measure_batch(items: list[tuple]) -> list[tuple]:
     """Measure a batch of maps in a worker; only small rows travel back."""
-    return [_measure_or_fail(item) for item in items]
+    return [_measure_and_hash(item) for item in items]
 
 
 def _dispatch(work: list[tuple], jobs: int, dask: str | None = None) -> Iterator[tuple[str, dict | None, str | None]]:
@@ -193,11 +207,11 @@ def _dispatch(work: list[tuple], jobs: int, dask: str | None = None) -> Iterator
         return
     if jobs == 1 or len(work) < 2:
         for item in work:
-            yield _measure_or_fail(item)
+            yield _measure_and_hash(item)
         return
     chunk = max(1, min(16, len(work) // (4 * int(jobs))))
     with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
-        yield from pool.map(_measure_or_fail, work, chunksize=chunk)
+        yield from pool.map(_measure_and_hash, work, chunksize=chunk)
 
 
 def _dispatch_dask(work: list[tuple], jobs: int, address: str):
@@ -247,7 +261,8 @@ def iter_measurements(
     """
     cap = _check_settings(cap_latitude, fill, field, jobs)
     work = [(os.fspath(p), cap, fill, field) for p in paths]
-    yield from _dispatch(work, int(jobs), dask)
+    for outcome in _dispatch(work, int(jobs), dask):
+        yield outcome[:3]
 
 
 @dataclass
@@ -268,7 +283,7 @@ def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "
     ``on_result(path, error_or_None, new)`` is called for each file (``new`` False when
     the ledger already held it).
     """
-    from .ledger import settings_key
+    from .ledger import file_digest, settings_key
 
     cap = _check_settings(cap_latitude, fill, field, jobs)
     settings = settings_key(cap, fill, field)
@@ -277,24 +292,38 @@ def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "
     for path in files:
         try:
             stat = os.stat(path)
-            digest = ledger.identify(path, stat)
         except OSError as exc:
             failures.append(Failure(path, f"{path}: cannot open ({exc.strerror or exc})"))
             if on_result:
                 on_result(path, failures[-1].reason, True)
             continue
+        digest = ledger.known_digest(path, stat)
+        if digest is None and int(jobs) == 1 and not dask:
+            try:
+                digest = file_digest(path)  # serially: look the content up before measuring it
+            except OSError as exc:
+                failures.append(Failure(path, f"{path}: cannot open ({exc.strerror or exc})"))
+                if on_result:
+                    on_result(path, failures[-1].reason, True)
+                continue
         meta[path] = (digest, stat)
-        hit = ledger.lookup(digest, settings)
+        hit = None if digest is None else ledger.lookup(digest, settings)
         if hit is None:
-            todo.append((path, cap, fill, field))
+            todo.append((path, cap, fill, field, digest is None))
         else:
             known[path] = hit
             if on_result:
                 on_result(path, hit[1], False)
     results = dict(known)
     new_failures = 0
-    for path, row, error in _dispatch(todo, int(jobs), dask):
+    for outcome in _dispatch(todo, int(jobs), dask):
+        path, row, error = outcome[:3]
         digest, stat = meta[path]
+        if digest is None:  # hashed in the worker, beside the measurement
+            digest = outcome[3]
+            if digest is None:
+                error = error or f"{path}: cannot read it to hash"
+                digest = f"unreadable:{path}"
         ledger.store(digest, settings, path, stat, row, error)
         results[path] = (row, error)
         new_failures += error is not None
