@@ -33,9 +33,13 @@ from astropy.time import Time
 
 from .errors import MapFormatError
 
-__all__ = ["SynopticMap", "read_map", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR"]
+__all__ = ["SynopticMap", "read_map", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
 
 GRIDS = ("sine-latitude", "equal-angle")
+
+#: Plausibility limit of a synoptic map's field, Gauss: far above any photospheric field
+#: (sunspot umbrae reach a few kG), so a map beyond it carries a unit or scaling error.
+PLAUSIBLE_MAX_G = 1e5
 
 #: Largest factor 1/cos(latitude) applied when converting line-of-sight field to
 #: radial (``field="los"``). 10 corresponds to 84.3 degrees latitude; poleward of
@@ -525,6 +529,15 @@ def _build_map(
     factor = _gauss_per_unit(header, source)
     if stats.counts.sum() == 0:
         raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
+    # Plausibility: a row whose sum exceeds the limit times its length holds an absurd value.
+    suspicious = np.flatnonzero(~(np.abs(stats.sums * factor) <= PLAUSIBLE_MAX_G * values.shape[1]))
+    if suspicious.size:
+        peak = float(np.nanmax(np.abs(values[suspicious]))) * abs(factor)
+        if not peak <= PLAUSIBLE_MAX_G:
+            raise MapFormatError(
+                f"{source}: implausible field values up to {peak:.3g} G (plausibility limit {PLAUSIBLE_MAX_G:.0e} G; "
+                "a unit or scaling error?)"
+            )
     if (factor != 1.0 or field == "los") and values.dtype != np.float64:
         values = values.astype(np.float64)  # scaled pixels keep full precision
     if factor != 1.0:
@@ -539,10 +552,15 @@ def _build_map(
     with quiet_time_warnings():
         time = _map_time(header, source)
         rotation = _rotation_number(header, lon_axis.rotation, time, source)
+        if rotation is not None and not 0 < rotation < 100_000:
+            raise MapFormatError(f"{source}: Carrington rotation {rotation} is outside 1-99999")
         if time is None and rotation is not None:
             from sunpy.coordinates.sun import carrington_rotation_time
 
-            time = carrington_rotation_time(rotation + 0.5).utc
+            try:
+                time = carrington_rotation_time(rotation + 0.5).utc
+            except Exception as exc:  # ERFA refuses dates it cannot represent
+                raise MapFormatError(f"{source}: rotation {rotation} gives no usable date ({_first_line(exc)})") from None
     instrument = ""
     for key in _INSTRUMENT_KEYS:
         if str(header.get(key, "")).strip():

@@ -51,13 +51,22 @@ def cea_header(nlat: int = 180, nlon: int = 360, **extra) -> dict:
 
 @pytest.fixture
 def index_data():
-    """Data whose values encode their own FITS (row, column): value = column + 1000 * row."""
+    """Data whose values encode their own FITS (row, column): value = (column + 1000 * row) / 10.
+
+    Divided by ten so that maps of up to 360 rows stay below the plausibility limit (1e5 G).
+    """
 
     def make(nlat: int, nlon: int) -> np.ndarray:
         j, i = np.mgrid[0:nlat, 0:nlon]
-        return (i + 1000.0 * j).astype(np.float32)
+        return ((i + 1000.0 * j) / 10.0).astype(np.float32)
 
     return make
+
+
+def decode_index(values):
+    """(row, column) of the file pixel each value came from (see ``index_data``)."""
+    code = np.rint(np.asarray(values, dtype=np.float64) * 10.0).astype(np.int64)
+    return code // 1000, code % 1000
 
 
 @pytest.fixture(scope="session")
