@@ -334,7 +334,10 @@ def plot_map(m, ax=None, cap_latitude: float = 60.0, caption: str | None = None)
     ax.set_yticklabels([f"{v:d}°" for v in ticks])
     ax.set_ylabel("latitude (sine-latitude scale)")
     ax.set_xlabel("Carrington longitude (deg)")
-    when = "" if m.time is None else f", {m.time.utc.isot[:10]}"
+    from .maps import quiet_time_warnings
+
+    with quiet_time_warnings():
+        when = "" if m.time is None else f", {m.time.utc.isot[:10]}"
     rotation = "" if m.carrington_rotation is None else f"CR {m.carrington_rotation}"
     ax.set_title(f"Synoptic map {rotation}{when} {m.instrument}".strip())
     ax.legend(loc="upper right", fontsize="x-small")
