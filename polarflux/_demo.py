@@ -109,7 +109,9 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
         print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
               f"{_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
               f"{target['random_factor']:.3f})")
-        public = {k: v for k, v in result.items() if k not in ("samples", "fit")}
+        from .forecast import public_result
+
+        public = public_result(result)
         with atomic_path(folder / "forecast.json", force=True) as tmp:
             tmp.write_text(json.dumps(public, indent=1, default=float), encoding="utf-8")
     else:

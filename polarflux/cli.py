@@ -393,9 +393,10 @@ def _write_forecast(result, t, v, outputs, force, caption, truth_amplitude=None)
     import json
 
     from ._io import atomic_path
+    from .forecast import public_result
     from .plots import plot_calibration, plot_forecast_fan
 
-    public = {k: val for k, val in result.items() if k not in ("samples", "fit")}
+    public = public_result(result)
     with atomic_path(outputs["json"], force=force) as tmp:
         tmp.write_text(json.dumps(public, indent=1, default=float), encoding="utf-8")
     for key, fig in (("fan", plot_forecast_fan(result, t, v, caption=caption, truth_amplitude=truth_amplitude)),

@@ -373,6 +373,11 @@ def _latest_profile(record, merged, as_of_ns, bases=("",)):
     return None
 
 
+def public_result(result: dict) -> dict:
+    """A forecast result without its Monte Carlo samples and fit object: what the JSON output holds."""
+    return {k: v for k, v in result.items() if k not in ("samples", "fit")}
+
+
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
                          calibration: list[dict] | None = None, as_of=None, members: int = 300, seed: int = 0,
                          viewing: str = "b0", bases=("",)) -> dict:

@@ -101,10 +101,6 @@ class Ledger:
         ).fetchone()
         return hit[0] if hit else None
 
-    def identify(self, path: str, stat: os.stat_result) -> str:
-        """The content hash of ``path``: from the ledger when path, size and mtime match, else computed."""
-        return self.known_digest(path, stat) or file_digest(path)
-
     def lookup(self, digest: str, settings: str):
         """(row dict or None, error or None), or None when this content was not measured with these settings."""
         hit = self._db.execute(

@@ -289,8 +289,8 @@ def _rotations(settings: ScenarioSettings, years: float):
     return numbers[keep], offsets[keep], mids[keep]
 
 
-def _observe(field_model: np.ndarray, model_grid, inst: Instrument, b0_deg: float, rng: np.random.Generator):
-    """One instrument's map of the model field: remap, scale, noise, and the hidden pole."""
+def _observe(field_model: np.ndarray, model_grid, inst: Instrument, rng: np.random.Generator):
+    """One instrument's map of the model field: remap, scale and noise (the hidden pole is masked by the caller)."""
     m = SynopticMap.from_array(np.zeros((inst.nlat, inst.nlon)))
     br = regrid_conservative(field_model, model_grid.lat_edges, model_grid.lon_edges, m.lat_edges, m.lon_edges)
     br *= inst.scale
@@ -399,7 +399,7 @@ def _write_scenario(out: Path, settings: ScenarioSettings, progress, force: bool
 
 def _write_observation(out: Path, inst: Instrument, truth_field, grid, b0: float, number: int, mid: Time,
                        settings: ScenarioSettings, rng: np.random.Generator) -> str:
-    br, m = _observe(truth_field, grid, inst, b0, rng)
+    br, m = _observe(truth_field, grid, inst, rng)
     # The pole tilted away from the observer (B0 < 0: the north) is poorly seen.
     north_limit = settings.hidden_pole_limit + b0
     south_limit = settings.hidden_pole_limit - b0

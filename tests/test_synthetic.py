@@ -123,7 +123,7 @@ def test_noise_is_a_few_gauss_and_grows_toward_the_poles():
 
     grid = _Grid(90, 180)
     inst = Instrument("test", 90, 180, 1.0, 3.0, 0.0, 1.0)
-    br, m = _observe(np.zeros((90, 180)), grid, inst, 0.0, np.random.default_rng(0))
+    br, m = _observe(np.zeros((90, 180)), grid, inst, np.random.default_rng(0))
     equator = br[np.abs(m.lat) < 20].std()
     polar = br[np.abs(m.lat) > 70].std()
     assert 2.0 <= equator <= 4.0
