@@ -75,12 +75,12 @@ CAUTION = (
 class Prediction:
     """A predicted amplitude: the central value and prediction intervals (68 % and 95 %)."""
 
-    median: np.ndarray
-    low68: np.ndarray
-    high68: np.ndarray
-    low95: np.ndarray
-    high95: np.ndarray
-    se: np.ndarray
+    median: np.ndarray | np.float64
+    low68: np.ndarray | np.float64
+    high68: np.ndarray | np.float64
+    low95: np.ndarray | np.float64
+    high95: np.ndarray | np.float64
+    se: np.ndarray | np.float64
 
 
 @dataclass
@@ -124,14 +124,29 @@ class PrecursorFit:
         return x[:, None] if self.through_origin else np.column_stack([np.ones_like(x), x])
 
     def predict(self, x) -> Prediction:
-        """Prediction intervals (Student t with ``dof`` degrees of freedom) at proxy value(s) ``x``."""
+        """Prediction intervals (Student t with ``dof`` degrees of freedom) at proxy value(s) ``x``.
+
+        Parameters
+        ----------
+        x : float or array-like
+            Proxy value(s).
+
+        Returns
+        -------
+        Prediction
+            Its fields have the shape of ``x``: numpy's convention, so a scalar
+            ``x`` gives scalars (``numpy.float64``) and an array gives arrays.
+        """
         from scipy import stats  # imported here: it costs most of the command's start-up time
 
-        design = self._design(x)
+        shape = np.shape(x)
+        design = self._design(np.ravel(np.asarray(x, dtype=np.float64)))
         mean = design @ self.coefficients
         se = self.residual_sd * np.sqrt(1.0 + np.einsum("ij,jk,ik->i", design, self._inverse, design))
         t68, t95 = stats.t.ppf([0.84134474606854293, 0.975], self.dof)
-        return Prediction(mean, mean - t68 * se, mean + t68 * se, mean - t95 * se, mean + t95 * se, se)
+        fields = (mean, mean - t68 * se, mean + t68 * se, mean - t95 * se, mean + t95 * se, se)
+        # reshape(()) then [()] turns a one-value result into a numpy scalar; arrays keep x's shape
+        return Prediction(*(np.reshape(f, shape)[()] for f in fields))
 
     def sample(self, x, rng: np.random.Generator) -> np.ndarray:
         """One draw from the predictive distribution at each proxy value in ``x``."""

@@ -39,6 +39,29 @@ def test_precursor_fit_matches_statsmodels(through_origin):
     np.testing.assert_allclose(p.median, frame["mean"].to_numpy(), rtol=1e-8)
 
 
+def test_predict_gives_scalars_for_a_scalar_and_arrays_for_an_array():
+    # numpy's convention: the result has the shape of the input; reference values from statsmodels OLS
+    x = np.array([1.0, 1.6, 2.1, 2.5, 3.0])
+    y = np.array([70.0, 95.0, 130.0, 150.0, 160.0])
+    fit = pf.fit_precursor(x, y)
+    ref = sm.OLS(y, sm.add_constant(x)).fit()
+    frame = ref.get_prediction(np.array([[1.0, 2.1]])).summary_frame(alpha=0.05)
+    p = fit.predict(2.1)
+    for value in (p.median, p.low68, p.high68, p.low95, p.high95, p.se):
+        assert np.ndim(value) == 0 and isinstance(value, np.floating)
+    assert float(p.median) == pytest.approx(frame["mean"].iloc[0], rel=1e-10)
+    assert float(p.low95) == pytest.approx(frame["obs_ci_lower"].iloc[0], rel=1e-10)
+    assert float(p.high95) == pytest.approx(frame["obs_ci_upper"].iloc[0], rel=1e-10)
+    one = fit.predict([2.1])
+    assert one.median.shape == (1,) and one.median[0] == pytest.approx(float(p.median), rel=1e-14)
+    grid = np.array([[1.0, 2.1], [2.5, 4.0]])
+    many = fit.predict(grid)
+    assert many.median.shape == many.high95.shape == (2, 2)
+    assert many.low95[0, 1] == pytest.approx(float(p.low95), rel=1e-14)
+    assert np.ndim(fit.sample(2.1, np.random.default_rng(1))) == 0
+    assert fit.sample(grid, np.random.default_rng(1)).shape == (2, 2)
+
+
 def test_leave_one_out_errors_are_refits_without_each_cycle():
     x = np.array([1.0, 1.6, 2.1, 2.5, 3.0])
     y = np.array([70.0, 95.0, 130.0, 150.0, 160.0])
