@@ -54,7 +54,7 @@ import numpy as np
 from scipy.linalg import solve
 
 from ..errors import SettingsError
-from ..geometry import SOLAR_RADIUS_CM, regrid_conservative
+from ..geometry import SOLAR_RADIUS_CM, cap_row_fraction, regrid_conservative
 from ..maps import SynopticMap
 from ..measure import fill_polar_gaps, profile_measures
 from .profiles import flow_profile as _flow_profile
@@ -121,27 +121,112 @@ def _latitude_operator(grid: _Grid, eta: np.ndarray, flow_faces: np.ndarray):
     return lower, diag, upper
 
 
-def _initial_field(initial, grid: _Grid) -> np.ndarray:
-    """The initial radial field on the model grid, (nlat, nlon) in Gauss."""
+GRID_NAMES = ("sine-latitude", "equal-angle")
+
+
+def _source_lat_edges(nrows: int, lat_edges, grid: str | None) -> np.ndarray:
+    """Latitude edges (degrees) of an array's rows, from ``lat_edges`` or a grid name."""
+    if lat_edges is not None and grid is not None:
+        raise SettingsError("give the initial rows' grid once: lat_edges or grid, not both")
+    if grid is not None:
+        if grid == "sine-latitude":
+            return np.rad2deg(np.arcsin(np.linspace(-1.0, 1.0, nrows + 1)))
+        if grid == "equal-angle":
+            return np.linspace(-90.0, 90.0, nrows + 1)
+        raise SettingsError(f"grid={grid!r}: expected one of {', '.join(GRID_NAMES)}")
+    edges = np.asarray(lat_edges, dtype=np.float64)
+    if edges.shape != (nrows + 1,):
+        raise SettingsError(f"lat_edges has {edges.size} values; the initial array's {nrows} rows need {nrows + 1}")
+    if not (edges[0] == -90.0 and edges[-1] == 90.0 and np.all(np.diff(edges) > 0)):
+        raise SettingsError("lat_edges must ascend from -90 to +90 degrees")
+    return edges
+
+
+def _missing_rows_message(values: np.ndarray, lat_edges) -> str:
+    """How many rows of an initial array hold NaN or inf, and how to fill them."""
+    bad = ~np.all(np.isfinite(values.reshape(values.shape[0], -1)), axis=1)
+    where = ""
+    if lat_edges is not None:
+        centre = 0.5 * (np.asarray(lat_edges)[:-1] + np.asarray(lat_edges)[1:])
+        where = f" ({np.count_nonzero(bad & (centre > 0))} north, {np.count_nonzero(bad & (centre <= 0))} south)"
+    return (
+        f"the initial state has no data (NaN or inf) in {np.count_nonzero(bad)} of its {values.shape[0]} "
+        f"latitude rows{where}; pass the SynopticMap itself (its polar gaps are filled as measure_caps(fill="
+        "'profile') does), or fill the map with polarflux.fill_polar_gaps before taking its longitude mean"
+    )
+
+
+def _initial_field(initial, grid: _Grid, lat_edges=None, row_grid: str | None = None) -> np.ndarray:
+    """Turn an initial state into the model grid's field, (nlat, nlon) in Gauss.
+
+    The one path from a user's initial state to model rows, for :class:`FluxTransport`
+    and :class:`TransportEnsemble` alike (the ensemble's grid has one column).
+
+    * A :class:`~polarflux.maps.SynopticMap` (its grid is known): missing polar
+      pixels filled by :func:`~polarflux.measure.fill_polar_gaps` (cap 60 degrees),
+      other gaps taken as zero field, then regridded conserving flux. A map with a
+      whole cap unobserved is refused.
+    * A callable f(lat_deg, lon_deg) -> Gauss, evaluated at the cell centres.
+    * An array (nrows,) or (nrows, ncols), row 0 southernmost, columns spanning
+      0-360 degrees of longitude. With ``lat_edges`` (degrees, nrows + 1 values
+      from -90 to 90) or ``row_grid`` ("sine-latitude" or "equal-angle", rows
+      spanning pole to pole) it is regridded conserving flux. Without either, an
+      array cannot say its grid, so it is read as the model's own rows and must
+      have exactly the model's shape; any other shape is refused.
+    * NaN or inf in an array is refused with the number of rows missing.
+    """
     if isinstance(initial, SynopticMap):
-        filled = fill_polar_gaps(initial, 60.0)
-        values = filled.values.astype(np.float64)
-        values[~np.isfinite(values)] = 0.0  # gaps outside the caps: no flux assumed
-        return regrid_conservative(values, initial.lat_edges, initial.lon_edges, grid.lat_edges, grid.lon_edges)
+        return _map_field(initial, grid)
     if callable(initial):
+        if lat_edges is not None or row_grid is not None:
+            raise SettingsError("lat_edges and grid describe an initial array; a function is evaluated on the model grid")
         lat, lon = np.meshgrid(grid.lat, grid.lon, indexing="ij")
         values = np.asarray(initial(lat, lon), dtype=np.float64)
-        return np.broadcast_to(values, (grid.nlat, grid.nlon)).copy()
-    values = np.asarray(initial, dtype=np.float64)
+        values = np.broadcast_to(values, (grid.nlat, grid.nlon)).copy()
+        if not np.all(np.isfinite(values)):
+            raise SettingsError(_missing_rows_message(values, grid.lat_edges))
+        return values
+    try:
+        values = np.array(initial, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise SettingsError(
+            f"initial state of type {type(initial).__name__}: expected a SynopticMap, an array or a function"
+        ) from None
+    if values.ndim not in (1, 2) or values.shape[0] < 1:
+        raise SettingsError(f"initial array of shape {values.shape}: expected (rows,) or (rows, columns)")
+    stated = lat_edges is not None or row_grid is not None
+    edges = _source_lat_edges(values.shape[0], lat_edges, row_grid) if stated else None
+    if not np.all(np.isfinite(values)):
+        raise SettingsError(_missing_rows_message(values, edges if stated else None))
+    if stated:
+        table = values[:, None] if values.ndim == 1 else values
+        lon_edges = np.linspace(0.0, 360.0, table.shape[1] + 1)
+        return regrid_conservative(table, edges, lon_edges, grid.lat_edges, grid.lon_edges)
     if values.shape == (grid.nlat,):
         return np.repeat(values[:, None], grid.nlon, axis=1)
-    if values.shape != (grid.nlat, grid.nlon):
+    if values.shape == (grid.nlat, grid.nlon):
+        return values
+    model_shape = f"({grid.nlat},)" if grid.nlon == 1 else f"({grid.nlat},) or ({grid.nlat}, {grid.nlon})"
+    raise SettingsError(
+        f"initial array of shape {values.shape} does not match the model grid {model_shape}; "
+        "an array on another grid must say so: pass lat_edges=... or grid='sine-latitude' / 'equal-angle'"
+    )
+
+
+def _map_field(m: SynopticMap, grid: _Grid) -> np.ndarray:
+    """A synoptic map on the model grid: polar gaps filled, other gaps zero, flux conserved."""
+    filled = fill_polar_gaps(m, 60.0)
+    values = filled.values.astype(np.float64)
+    # fill_polar_gaps leaves a cap with no data at all missing: zero there would be an invented polar field
+    unseen = [hemisphere for hemisphere in ("north", "south")
+              if np.isnan(values[cap_row_fraction(m.lat_edges, 60.0, hemisphere) > 0]).all()]
+    if unseen:
         raise SettingsError(
-            f"initial array of shape {values.shape} does not match the model grid ({grid.nlat}, {grid.nlon})"
+            f"{m.source or 'map'}: no data poleward of 60 degrees {' and '.join(unseen)}: "
+            "the polar field cannot be filled from the map; give a map that sees the caps"
         )
-    if not np.all(np.isfinite(values)):
-        raise SettingsError("initial array holds NaN or inf; fill it first (for example with fill_polar_gaps)")
-    return values.copy()
+    values[~np.isfinite(values)] = 0.0  # gaps outside the caps: no flux assumed
+    return regrid_conservative(values, m.lat_edges, m.lon_edges, grid.lat_edges, grid.lon_edges)
 
 
 def _sorted_sources(sources: Iterable[BipolarRegion] | None) -> list[BipolarRegion]:
@@ -272,9 +357,12 @@ class FluxTransport:
             return state[:, :1].real.copy()
         return np.fft.irfft(state * self.grid.nlon, n=self.grid.nlon, axis=1)
 
-    def initial_field(self, initial) -> np.ndarray:
-        """The initial radial field on the model grid (nlat, nlon), Gauss."""
-        return _initial_field(initial, self.grid)
+    def initial_field(self, initial, lat_edges=None, grid: str | None = None) -> np.ndarray:
+        """The initial radial field on the model grid (nlat, nlon), Gauss.
+
+        ``initial``, ``lat_edges`` and ``grid`` as in :meth:`run`.
+        """
+        return _initial_field(initial, self.grid, lat_edges, grid)
 
     # ------------------------------------------------------------------ run
     def run(
@@ -286,6 +374,8 @@ class FluxTransport:
         save_every_days: float = CARRINGTON_PERIOD_DAYS,
         cap_latitude: float = 60.0,
         progress: Callable[[int, int], None] | None = None,
+        lat_edges=None,
+        grid: str | None = None,
     ):
         """Evolve ``initial`` for ``years`` and return the saved states.
 
@@ -294,8 +384,19 @@ class FluxTransport:
         initial : SynopticMap, ndarray or callable
             A map (regridded onto the model grid conserving flux; missing polar
             pixels filled as ``measure_caps(fill="profile")`` does, other gaps taken
-            as zero), an array on the model grid (nlat, nlon) or (nlat,), or
-            f(lat_deg, lon_deg) -> Gauss evaluated at the cell centres.
+            as zero; a map with a whole cap unobserved is refused), an array
+            (rows,) or (rows, columns) with row 0 southernmost, or
+            f(lat_deg, lon_deg) -> Gauss evaluated at the cell centres. An array
+            holding NaN or inf is refused (fill the map first, or pass the map).
+        lat_edges : array-like, optional
+            Latitude edges (degrees, -90 to 90, rows + 1 values) of an initial
+            array's rows; the array is then regridded conserving flux.
+        grid : {"sine-latitude", "equal-angle"}, optional
+            Names the grid of an initial array's rows instead of ``lat_edges``.
+            An array without ``lat_edges`` or ``grid`` is read as rows of the
+            model's own equal-angle grid and must have its exact shape (nlat,) or
+            (nlat, nlon): an array cannot tell its grid, so a sine-latitude
+            profile of the same length must be named as such.
         years, step_days : float
             Length of the run and the time step; the step is adjusted slightly so
             that a whole number of steps ends exactly at ``years``.
@@ -316,7 +417,7 @@ class FluxTransport:
         """
         nsteps, step_days = _steps(years, step_days)
         saves = _save_steps(nsteps, step_days, save_every_days)
-        stepper = self.stepper(initial, step_days)
+        stepper = self.stepper(self.initial_field(initial, lat_edges, grid), step_days)
         regions = _sorted_sources(sources)
         next_region = 0
         frames = []
@@ -333,7 +434,8 @@ class FluxTransport:
         if progress is not None:
             progress(nsteps, nsteps)
         times = saves * step_days / 365.25
-        return self._dataset(np.stack(frames), times, cap_latitude, years, step_days, len(regions))
+        # regions emerging at or after the end are never deposited, so they are not counted
+        return self._dataset(np.stack(frames), times, cap_latitude, years, step_days, next_region)
 
     def stepper(self, initial, step_days: float = 1.0) -> Stepper:
         """A :class:`Stepper` holding the model state, for runs driven step by step."""
@@ -366,7 +468,7 @@ class FluxTransport:
             "years": float(years),
             "step_days": float(step_days),
             "cap_deg": float(cap_latitude),
-            "regions": int(nregions),
+            "regions": int(nregions),  # regions deposited during the run
         }
         return xr.Dataset(data_vars, coords=coords, attrs=attrs)
 
@@ -502,13 +604,55 @@ class TransportEnsemble:
     def members(self) -> int:
         return self.diffusivity.size
 
+    def _initial_rows(self, initial, lat_edges, grid) -> np.ndarray:
+        """Each member's initial profile on the model rows, shape (nlat, members)."""
+        if callable(initial) and not isinstance(initial, SynopticMap):
+            profile = initial
+            initial = lambda lat, lon: profile(lat)  # noqa: E731 - the ensemble's callables take latitude only
+        if isinstance(initial, SynopticMap) or callable(initial) or np.ndim(initial) != 2:
+            rows = _initial_field(initial, self.grid, lat_edges, grid)  # (nlat, 1)
+            return np.repeat(rows, self.members, axis=1)
+        profiles = np.asarray(initial)
+        if profiles.shape[0] != self.members:
+            raise SettingsError(
+                f"initial profiles of shape {profiles.shape}: a 2-D initial state holds one profile per member, "
+                f"({self.members}, rows); for a map pass the SynopticMap"
+            )
+        return np.column_stack([_initial_field(p, self.grid, lat_edges, grid)[:, 0] for p in profiles])
+
     def run(self, initial, years: float = 11.0, step_days: float = 1.0,
             save_every_days: float = CARRINGTON_PERIOD_DAYS, cap_latitude: float = 60.0,
-            sources: Sequence[BipolarRegion] | None = None, nlon_sources: int = 360):
-        """Evolve every member from ``initial`` ((nlat,) shared, or (members, nlat), or callable f(lat)).
+            sources: Sequence[BipolarRegion] | None = None, nlon_sources: int = 360,
+            lat_edges=None, grid: str | None = None):
+        """Evolve every member from ``initial``.
 
-        Returns an ``xarray.Dataset`` with ``br`` (member, time, lat) and the polar
-        mean fields and axial dipole (member, time).
+        Parameters
+        ----------
+        initial : SynopticMap, ndarray or callable
+            A map (its longitude mean is taken, after the same polar filling and
+            flux-conserving regridding as :meth:`FluxTransport.run`), a latitude
+            profile (rows,) shared by all members, profiles (members, rows), or
+            f(lat_deg) -> Gauss evaluated at the cell centres. Profiles holding
+            NaN or inf (a longitude mean of a map with unseen polar rows) are
+            refused with the number of rows missing: pass the map itself, or fill
+            it with :func:`polarflux.fill_polar_gaps` first.
+        years, step_days, save_every_days, cap_latitude, sources
+            As in :meth:`FluxTransport.run`; ``nlon_sources`` columns are used to
+            deposit each region before its longitude mean is taken.
+        lat_edges : array-like, optional
+            Latitude edges (degrees, -90 to 90) of the profile rows; the profiles
+            are regridded to the model rows conserving flux.
+        grid : {"sine-latitude", "equal-angle"}, optional
+            Names the profile rows' grid instead of ``lat_edges``. A profile
+            without ``lat_edges`` or ``grid`` is read as the model's own
+            equal-angle rows and must have exactly ``nlat`` of them (a
+            sine-latitude profile of that length cannot be told apart from its
+            values, so it must be named).
+
+        Returns
+        -------
+        xarray.Dataset
+            ``br`` (member, time, lat) and the polar mean fields and axial dipole (member, time).
         """
         import xarray as xr
 
@@ -517,9 +661,7 @@ class TransportEnsemble:
         nsteps, step_days = _steps(years, step_days)
         dt = step_days * _DAY
         saves = _save_steps(nsteps, step_days, save_every_days)
-        if callable(initial):
-            initial = np.asarray(initial(g.lat), dtype=np.float64)
-        b = np.broadcast_to(np.asarray(initial, dtype=np.float64), (k, g.nlat)).T.copy()  # (nlat, k)
+        b = self._initial_rows(initial, lat_edges, grid)  # (nlat, k)
         flow = np.asarray(self.shape(g.lat_edges), dtype=np.float64)[:, None] * self.flow_speed[None, :]
         lower, diag, upper = _latitude_operator(g, self.diffusivity * 1e6, flow)
         half = 0.5 * dt
