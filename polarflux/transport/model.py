@@ -295,7 +295,7 @@ class FluxTransport:
         if not self.diffusivity >= 0:
             raise SettingsError(f"diffusivity={diffusivity} km^2/s must be zero or positive")
         if decay_time is not None and not float(decay_time) > 0:
-            raise SettingsError(f"decay_time={decay_time} years must be positive or None")
+            raise SettingsError(f"decay_time={decay_time}: expected a positive number of years, or None for no decay")
         self.flow_speed = float(flow_speed)
         self.flow = _flow_profile(self.flow_speed, flow_profile)
         self.rotation = rotation_profile(rotation)
