@@ -1,0 +1,101 @@
+"""Figures of a hindcast (:func:`polarflux.hindcast.hindcast`), made without pyplot."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .events import from_decimal_year
+from .plots import _add_caption, _new_axes
+
+__all__ = ["plot_cycle_evolution", "plot_pit", "plot_error_by_lead"]
+
+_FORECAST = "#1f5fa6"
+_OUTCOME = "#c45a12"
+
+
+def _dates(years) -> np.ndarray:
+    return from_decimal_year(np.asarray(years, dtype=np.float64), True)
+
+
+def plot_cycle_evolution(result, cycle: str, ax=None, caption: str | None = None):
+    """How the forecast of one cycle evolved: median and 68/95 % ranges against the date it was made.
+
+    The outcome is a horizontal line, the minimum that starts the cycle a vertical
+    line; dates whose forecast failed are marked along the bottom.
+    """
+    fig, ax = _new_axes(ax, size=(9, 4.8))
+    pick = result["cycle"].values == cycle
+    ok = pick & (result["status"].values == "ok")
+    when = _dates(result["date"].values[ok])
+    ax.fill_between(when, result["low95"].values[ok], result["high95"].values[ok], color=_FORECAST, alpha=0.15,
+                    linewidth=0, label="95 % range")
+    ax.fill_between(when, result["low68"].values[ok], result["high68"].values[ok], color=_FORECAST, alpha=0.3,
+                    linewidth=0, label="68 % range")
+    ax.plot(when, result["median"].values[ok], color=_FORECAST, marker="o", markersize=3, linewidth=1.2,
+            label="forecast median")
+    outcome = result["outcome"].values[pick]
+    if outcome.size and np.isfinite(outcome[0]):
+        ax.axhline(float(outcome[0]), color=_OUTCOME, linewidth=1.5, linestyle="--",
+                   label=f"outcome {float(outcome[0]):.0f}")
+    minimum = result["outcome_minimum"].values[pick]
+    if minimum.size and np.isfinite(minimum[0]):
+        ax.axvline(_dates(minimum[:1])[0], color="0.3", linestyle=":", linewidth=1.2, label="minimum")
+    failed = pick & (result["status"].values != "ok")
+    if failed.any():
+        ax.plot(_dates(result["date"].values[failed]), np.zeros(int(failed.sum())), linestyle="none", marker="x",
+                color="#a01010", label="forecast failed")
+    ax.set_ylim(bottom=0.0)
+    ax.set_xlabel("date the forecast was made (UTC)")
+    ax.set_ylabel("cycle amplitude (13-month smoothed sunspot number)")
+    ax.set_title(f"Forecast of {cycle} as it evolved")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    if caption:
+        _add_caption(fig, caption)
+    return fig
+
+
+def plot_pit(result, ax=None, caption: str | None = None, bins: int = 10):
+    """Histogram of the PIT values of the scored forecasts; a calibrated forecast is flat (dashed line)."""
+    fig, ax = _new_axes(ax, size=(6.5, 4.5))
+    pit = result["pit"].values
+    pit = pit[np.isfinite(pit)]
+    ax.hist(pit, bins=np.linspace(0.0, 1.0, bins + 1), color=_FORECAST, edgecolor="white", label="forecasts")
+    ax.axhline(pit.size / bins, color=_OUTCOME, linestyle="--", linewidth=1.2, label="calibrated (uniform)")
+    ax.set_xlim(0.0, 1.0)
+    ax.set_xlabel("PIT: fraction of the forecast sample below the outcome")
+    ax.set_ylabel("forecasts per bin")
+    ax.set_title(f"PIT histogram ({pit.size} scored forecasts)")
+    ax.legend(loc="upper center", fontsize="x-small")
+    if caption:
+        _add_caption(fig, caption)
+    return fig
+
+
+def plot_error_by_lead(result, ax=None, caption: str | None = None, edges=None):
+    """Relative error of the median (percent) against lead, with the median |error| per lead bin."""
+    from .hindcast import LEAD_EDGES
+
+    edges = np.asarray(LEAD_EDGES if edges is None else edges, dtype=np.float64)
+    fig, ax = _new_axes(ax, size=(8, 4.5))
+    lead = result["lead"].values
+    rel = 100.0 * result["relative_error"].values
+    good = np.isfinite(lead) & np.isfinite(rel)
+    ax.plot(lead[good], rel[good], linestyle="none", marker="o", markersize=3, color=_FORECAST, alpha=0.6,
+            label="forecast (median - outcome) / outcome")
+    centres, medians = [], []
+    for a, b in zip(edges[:-1], edges[1:], strict=True):
+        inside = good & (lead >= a) & (lead <= b if b == edges[-1] else lead < b)
+        if inside.any():
+            centres.append(0.5 * (a + b))
+            medians.append(float(np.median(np.abs(rel[inside]))))
+    ax.plot(centres, medians, color=_OUTCOME, marker="s", linewidth=1.5, label="median |relative error| per bin")
+    ax.axhline(0.0, color="0.6", linewidth=0.8)
+    ax.axvline(0.0, color="0.3", linestyle=":", linewidth=1.0, label="minimum")
+    ax.set_xlim(edges[0] - 0.25, edges[-1] + 0.25)
+    ax.set_xlabel("lead: forecast date minus the minimum that starts the cycle (years)")
+    ax.set_ylabel("relative error of the median (%)")
+    ax.set_title("Forecast error against lead")
+    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    if caption:
+        _add_caption(fig, caption)
+    return fig

@@ -1,0 +1,736 @@
+"""Hindcasts: the forecast as it would have been made on many past dates, scored against what followed.
+
+What a forecast on a date may see
+---------------------------------
+Each forecast is given only what existed on its date, cut here before the
+forecast is called (the forecast's own ``as_of`` is not relied on):
+
+* a synoptic map once its Carrington rotation has ended: the record's map time is
+  the middle of the rotation, so a map counts from its time plus half a rotation
+  (27.2753 / 2 days) on;
+* a sunspot number once its period has ended: a monthly mean from the first day of
+  the next calendar month, a yearly mean from the next first of January (other
+  cadences: the time plus one step);
+* calibration pairs (polar proxy at a minimum, amplitude of the cycle after it) only
+  as the forecast finds them in the cut record and the cut sunspot series. A
+  calibration passed in by hand (``calibration=``) is used as given.
+
+Scores
+------
+Where the outcome is known (the next cycle's maximum of the 13-month smoothed
+sunspot number in the whole series, or the amplitudes of a scenario's truth), each
+forecast gets its error and relative error, its probability integral transform
+(PIT: the fraction of the Monte Carlo sample below the outcome), whether the
+outcome lies inside the 68 % and 95 % ranges, and its continuous ranked
+probability score (CRPS) of the sample. Summaries by lead (the forecast date minus
+the minimum that starts the cycle forecast) give the median absolute relative
+error, coverage with its exact binomial 95 % interval (Clopper & Pearson 1934), and
+the CRPS skill against climatology: a normal distribution with the mean and
+standard deviation of the earlier cycles' amplitudes.
+
+References
+----------
+Gneiting, T. & Raftery, A. E. 2007, J. Am. Stat. Assoc. 102, 359 (CRPS, its kernel
+form for a sample and its closed form for a normal distribution).
+Gneiting, T., Balabdaoui, F. & Raftery, A. E. 2007, J. R. Stat. Soc. B 69, 243
+(PIT histograms and calibration).
+Clopper, C. J. & Pearson, E. S. 1934, Biometrika 26, 404 (binomial intervals).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+from collections.abc import Callable, Sequence
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from pathlib import Path
+
+import numpy as np
+
+from ._version import __version__
+from .errors import PolarfluxError, SettingsError
+from .events import find_cycle_extrema, from_decimal_year, to_decimal_year
+
+__all__ = [
+    "ROTATION_DAYS",
+    "LEAD_EDGES",
+    "hindcast",
+    "write_hindcast",
+    "forecast_dates",
+    "cut_record",
+    "cut_sunspots",
+    "outcomes_from_series",
+    "outcomes_from_truth",
+    "crps_sample",
+    "crps_normal",
+    "lead_table",
+    "summarise",
+    "summary_line",
+]
+
+#: Mean synodic Carrington rotation period, days.
+ROTATION_DAYS = 27.2753
+#: Lead bins (years, date minus the minimum that starts the cycle forecast).
+LEAD_EDGES = (-4.0, -3.0, -2.0, -1.0, 0.0, 1.0, 2.0)
+#: A cycle's amplitude joins the climatology this long after its maximum (the series must
+#: have passed the maximum before it is known, as ``find_cycle_extrema`` has it).
+KNOWN_AFTER_YEARS = 2.0
+_HOUR_NS = np.timedelta64(3600 * 10**9, "ns")
+
+
+# --------------------------------------------------------------------------- what a date may see
+
+
+def _years(values) -> np.ndarray:
+    """Decimal years of floats, datetime64 values or ISO date strings."""
+    arr = np.atleast_1d(np.asarray(values))
+    if arr.dtype.kind in "US" or arr.dtype == object:
+        try:
+            arr = arr.astype("datetime64[ns]")
+        except ValueError:
+            arr = arr.astype(np.float64)
+    return to_decimal_year(arr)[0]
+
+
+def map_available(times) -> np.ndarray:
+    """When each map becomes available: its mid-rotation time plus half a rotation (datetime64[ns])."""
+    half = np.timedelta64(int(round(0.5 * ROTATION_DAYS * 86400e9)), "ns")
+    return np.asarray(times).astype("datetime64[ns]") + half
+
+
+def cut_record(record, date: float):
+    """The record entries whose rotation had ended on ``date`` (decimal year)."""
+    date_ns = from_decimal_year(np.array([date]), True)[0]
+    keep = np.flatnonzero(map_available(record["time"].values) <= date_ns)
+    return record.isel(time=keep)
+
+
+def sunspot_available(times) -> np.ndarray:
+    """Decimal year at which each sunspot value's period has ended.
+
+    Monthly series (median step under two months): the first day of the next
+    calendar month. Yearly series (median step 0.9 to 1.1 years): the next first of
+    January. Any other cadence: the time plus one median step.
+    """
+    t = np.asarray(times, dtype=np.float64)
+    if t.size < 2:
+        return t.copy()
+    step = float(np.median(np.diff(t)))
+    # an hour's margin: a first-of-month date must not round into the month before
+    moments = from_decimal_year(t, True) + _HOUR_NS
+    if step < 2.0 / 12.0:
+        ends = (moments.astype("datetime64[M]") + 1).astype("datetime64[ns]")
+    elif 0.9 <= step <= 1.1:
+        ends = (moments.astype("datetime64[Y]") + 1).astype("datetime64[ns]")
+    else:
+        return t + step
+    return to_decimal_year(ends)[0]
+
+
+def cut_sunspots(times, values, date: float) -> tuple[np.ndarray, np.ndarray]:
+    """The sunspot values whose month (or year) had ended on ``date``."""
+    t = np.asarray(times, dtype=np.float64)
+    v = np.asarray(values, dtype=np.float64)
+    keep = sunspot_available(t) <= date
+    return t[keep], v[keep]
+
+
+# --------------------------------------------------------------------------- dates
+
+
+def _parse_every(every) -> tuple[int, str]:
+    if isinstance(every, (int, float)) and not isinstance(every, bool):
+        months = float(every) * 12.0
+        if months <= 0 or abs(months - round(months)) > 1e-9:
+            raise SettingsError(f"every={every!r}: a number is years and must be a whole number of months")
+        return int(round(months)), "M"
+    match = re.fullmatch(r"\s*(\d+)\s*([MYD])\s*", str(every), flags=re.IGNORECASE)
+    if not match or int(match.group(1)) < 1:
+        raise SettingsError(f"every={every!r}: expected a step like 3M (months), 1Y (years) or 27D (days)")
+    return int(match.group(1)), match.group(2).upper()
+
+
+def _grid(start: float, end: float, every) -> np.ndarray:
+    """Calendar dates from ``start`` to ``end``: first days of months on multiples of N months (3M gives
+    January, April, July, October), first days of years, or every N days from ``start``."""
+    n, unit = _parse_every(every)
+    first, last = from_decimal_year(np.array([start, end]), True)
+    if unit == "D":
+        step = np.timedelta64(n * 86400, "s").astype("timedelta64[ns]")
+        count = int((last - first) // step) + 1
+        dates = first + step * np.arange(max(count, 0))
+    else:
+        months = n * (12 if unit == "Y" else 1)
+        m0 = int((first - _HOUR_NS).astype("datetime64[M]").astype(np.int64)) + 1  # first month start >= start
+        m0 += (-m0) % months
+        m1 = int(last.astype("datetime64[M]").astype(np.int64))
+        dates = np.arange(m0, m1 + 1, months).astype("datetime64[M]").astype("datetime64[ns]")
+    years = to_decimal_year(dates)[0]
+    return years[(years >= start) & (years <= end)]
+
+
+def _calibration_cycles(t_rec: np.ndarray, t_ssn: np.ndarray, v_ssn: np.ndarray) -> int:
+    """Cycles a forecast could calibrate on: minima the record covers, each with the maximum after it known.
+
+    A cheap look-ahead of what the forecast will find (the record's 13-rotation
+    running mean needs 9 entries around a minimum); the forecast decides for itself.
+    """
+    if t_ssn.size < 26 or t_rec.size < 13:
+        return 0
+    minima, maxima = find_cycle_extrema(t_ssn, v_ssn)
+    count = 0
+    half = 6.5 * ROTATION_DAYS / 365.25
+    for k, m in enumerate(minima.times):
+        covered = np.count_nonzero(np.abs(t_rec - m) <= half) >= 9 and t_rec[0] <= m <= t_rec[-1]
+        nxt = minima.times[k + 1] if k + 1 < minima.times.size else np.inf
+        known = np.any((maxima.times > m) & (maxima.times <= nxt))
+        count += bool(covered and known)
+    return count
+
+
+def forecast_dates(record, sunspot_times, sunspot_values, every="3M", start=None, end=None,
+                   min_cycles: int = 3) -> np.ndarray:
+    """The default hindcast dates: a calendar grid across the record where enough cycles can calibrate.
+
+    Parameters
+    ----------
+    record : xarray.Dataset
+        The measured record.
+    sunspot_times, sunspot_values : array-like
+        Decimal years and sunspot numbers.
+    every : str or float
+        Grid step: ``"3M"`` (months), ``"1Y"`` (years), ``"27D"`` (days), or years as a number.
+    start, end : decimal year, datetime64 or ISO date, optional
+        Limits (default: the first map's time to the end of the last map's rotation).
+    min_cycles : int
+        Calibration cycles needed, each judged from what existed on the date only.
+
+    Returns
+    -------
+    ndarray
+        Decimal years. Nothing here looks at any truth or at data after each date.
+    """
+    t_rec = to_decimal_year(record["time"].values)[0]
+    t_rec = t_rec[np.isfinite(t_rec)]
+    if t_rec.size == 0:
+        raise SettingsError("the record holds no dated map")
+    t_ssn = np.asarray(sunspot_times, dtype=np.float64)
+    v_ssn = np.asarray(sunspot_values, dtype=np.float64)
+    lo = float(t_rec.min()) if start is None else float(_years(start)[0])
+    hi = float(to_decimal_year(map_available(record["time"].values.max()[None]))[0][0]) if end is None \
+        else float(_years(end)[0])
+    grid = _grid(lo, hi, every)
+    keep = []
+    for date in grid:
+        past = t_rec[to_decimal_year(map_available(from_decimal_year(t_rec, True)))[0] <= date]
+        ts, vs = cut_sunspots(t_ssn, v_ssn, date)
+        keep.append(_calibration_cycles(np.sort(past), ts, vs) >= min_cycles)
+    return grid[np.array(keep, dtype=bool)] if grid.size else grid
+
+
+# --------------------------------------------------------------------------- one forecast
+
+
+def _date_seed(seed: int, date: float) -> int:
+    """A seed per date that does not depend on the order or the worker the forecast runs in."""
+    hours = int(round(date * 365.25 * 24.0))
+    return int(np.random.SeedSequence([int(seed), hours]).generate_state(1)[0])
+
+
+def _forecast_at(record, t_ssn, v_ssn, date: float, members: int, seed: int, options: dict) -> dict:
+    """One forecast on what existed on ``date``; failures come back as rows with their reason."""
+    from .forecast import forecast_from_record
+
+    past = cut_record(record, date)
+    ts, vs = cut_sunspots(t_ssn, v_ssn, date)
+    row = {"date": float(date), "status": "failed", "reason": "", "maps_used": int(past.sizes["time"]),
+           "sunspot_values_used": int(ts.size), "sample": None}
+    if past.sizes["time"]:
+        row["last_map"] = float(to_decimal_year(past["time"].values.max()[None])[0][0])
+    try:
+        if past.sizes["time"] == 0:
+            raise SettingsError("no map's rotation had ended by this date")
+        if ts.size < 2:
+            raise SettingsError("no sunspot numbers before this date")
+        result = forecast_from_record(past, ts, vs, as_of=float(date), members=members,
+                                      seed=_date_seed(seed, date), **options)
+    except PolarfluxError as exc:
+        row["reason"] = str(exc)
+        return row
+    except Exception as exc:  # an unexpected failure must not end the batch
+        row["reason"] = f"unexpected {type(exc).__name__}: {exc}"
+        return row
+    amplitude = result["forecast"]["amplitude"]
+    row.update({
+        "status": "ok",
+        "calibration_cycles": len(result["calibration"]["pairs"]),
+        **{k: float(amplitude[k]) for k in ("median", "low68", "high68", "low95", "high95")},
+        "maximum_time": float(result["forecast"]["maximum_time"]["median"]),
+        "forecast_minimum": float(result["projection"]["minimum_time"]["median"]),
+        "projection": str(result["projection"]["method"]).split(" from ")[0].split(" (")[0],
+        "sample": np.asarray(result["samples"]["amplitude"], dtype=np.float64),
+    })
+    return row
+
+
+def _forecast_batch(payload: tuple, dates: Sequence[float]) -> list[dict]:
+    record, t_ssn, v_ssn, members, seed, options = payload
+    return [_forecast_at(record, t_ssn, v_ssn, d, members, seed, options) for d in dates]
+
+
+def _pool_batch(args: tuple) -> list[dict]:
+    payload, dates = args
+    return _forecast_batch(payload, dates)
+
+
+def _run(payload: tuple, dates: np.ndarray, jobs: int, dask: str | None, progress) -> list[dict]:
+    """Forecast every date serially, in a process pool or on a dask.distributed cluster."""
+    total = int(dates.size)
+    rows: list[dict] = []
+
+    def tick(done_rows):
+        rows.extend(done_rows)
+        if progress is not None:
+            progress(len(rows), total)
+
+    if total == 0:
+        return rows
+    if dask:
+        _run_dask(payload, dates, jobs, dask, tick)
+    elif jobs <= 1 or total < 2:
+        for d in dates:
+            tick(_forecast_batch(payload, [d]))
+    else:
+        size = max(1, min(8, total // (3 * jobs)))
+        batches = [dates[i: i + size] for i in range(0, total, size)]
+        with ProcessPoolExecutor(max_workers=int(jobs)) as pool:
+            futures = [pool.submit(_pool_batch, (payload, b)) for b in batches]
+            for future in as_completed(futures):
+                tick(future.result())
+    return sorted(rows, key=lambda r: r["date"])
+
+
+def _run_dask(payload: tuple, dates: np.ndarray, jobs: int, address: str, tick) -> None:
+    """Batches of dates as dask tasks; the record and sunspot series travel to each worker once."""
+    try:
+        from dask.distributed import Client, LocalCluster
+        from dask.distributed import as_completed as dask_completed
+    except ImportError:
+        raise SettingsError("--dask needs the dask extra: pip install 'polarflux[dask]'") from None
+    cluster = None
+    if address == "local":
+        cluster = LocalCluster(n_workers=max(1, int(jobs)), threads_per_worker=1, processes=True,
+                               host="127.0.0.1", dashboard_address=None)
+        client = Client(cluster)
+    else:
+        try:
+            client = Client(address, timeout=30)
+        except OSError as exc:
+            raise SettingsError(f"--dask {address}: cannot reach the scheduler ({exc})") from None
+    try:
+        workers = max(1, len(client.scheduler_info().get("workers", {})) or int(jobs))
+        size = max(1, min(8, dates.size // (3 * workers) or 1))
+        shared = client.scatter(payload, broadcast=True)
+        batches = [list(map(float, dates[i: i + size])) for i in range(0, dates.size, size)]
+        futures = client.map(_forecast_batch, [shared] * len(batches), batches, pure=False)
+        for future in dask_completed(futures):
+            tick(future.result())
+            future.release()
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+# --------------------------------------------------------------------------- outcomes
+
+
+def outcomes_from_series(times, values) -> list[dict]:
+    """Cycles of the whole sunspot series: each maximum of the 13-month smoothed number and its minimum.
+
+    Returns one dict per cycle with a minimum before its maximum: ``cycle`` (label),
+    ``minimum``, ``maximum_time`` (decimal years) and ``amplitude``.
+    """
+    minima, maxima = find_cycle_extrema(np.asarray(times, dtype=np.float64), np.asarray(values, dtype=np.float64))
+    out = []
+    for k, m in enumerate(minima.times):
+        after = np.flatnonzero(maxima.times > m)
+        nxt = minima.times[k + 1] if k + 1 < minima.times.size else np.inf
+        if after.size and maxima.times[after[0]] < nxt:
+            i = after[0]
+            out.append({"cycle": f"minimum {m:.2f}", "minimum": float(m),
+                        "maximum_time": float(maxima.times[i]), "amplitude": float(maxima.values[i])})
+    return out
+
+
+def outcomes_from_truth(truth) -> list[dict]:
+    """Cycles of a scenario's truth (``truth.json`` or its dict): amplitude, minimum and maximum in decimal years.
+
+    The minimum is the truth's ``minimum_years`` (else the cycle's start); a maximum
+    beyond the scenario (``None``) is taken 4 years after the minimum for choosing
+    targets only (common practice: a typical rise time).
+    """
+    if not isinstance(truth, dict):
+        path = os.fspath(truth)
+        try:
+            with open(path, encoding="utf-8") as handle:
+                truth = json.load(handle)
+        except OSError as exc:
+            raise PolarfluxError(f"{path}: cannot open ({exc.strerror or exc})") from None
+        except json.JSONDecodeError as exc:
+            raise PolarfluxError(f"{path}: is not JSON ({exc.msg}, line {exc.lineno})") from None
+        if "cycles" not in truth or "start" not in truth:
+            raise PolarfluxError(f"{path}: is not a scenario truth (needs 'start' and 'cycles')")
+    origin = np.datetime64(str(truth["start"]).replace("Z", ""), "ns")
+
+    def year(offset):
+        if offset is None:
+            return None
+        return float(to_decimal_year((origin + np.timedelta64(int(round(offset * 365.25 * 86400e9)), "ns"))[None])
+                     [0][0])
+
+    out = []
+    entries = list(truth["cycles"]) + ([truth["next_cycle"]] if truth.get("next_cycle") else [])
+    for c in entries:
+        minimum = year(c.get("minimum_years") if c.get("minimum_years") is not None else c["start_years"])
+        peak = year(c.get("maximum_years"))
+        out.append({"cycle": f"cycle {c['cycle']}", "minimum": minimum,
+                    "maximum_time": peak if peak is not None else minimum + 4.0,
+                    "amplitude": float(c["amplitude"])})
+    return sorted(out, key=lambda c: c["minimum"])
+
+
+def _target(date: float, outcomes: list[dict]) -> dict | None:
+    """The cycle a forecast on ``date`` is about: the first whose maximum lies after the date."""
+    for c in outcomes:
+        if c["maximum_time"] > date:
+            return c
+    return None
+
+
+# --------------------------------------------------------------------------- scores
+
+
+def crps_sample(sample, outcome: float) -> float:
+    """CRPS of the empirical distribution of ``sample`` at ``outcome``: E|X - y| - E|X - X'| / 2.
+
+    Computed from the sorted sample in O(n log n) (Gneiting & Raftery 2007, eq. 21;
+    the ensemble's own distribution function, all pairs counted).
+    """
+    x = np.sort(np.asarray(sample, dtype=np.float64))
+    x = x[np.isfinite(x)]
+    n = x.size
+    if n == 0 or not np.isfinite(outcome):
+        return math.nan
+    spread = 2.0 * np.sum((2.0 * np.arange(n) - n + 1.0) * x) / n**2
+    return float(np.mean(np.abs(x - outcome)) - 0.5 * spread)
+
+
+def crps_normal(mean, sd, outcome) -> np.ndarray:
+    """CRPS of a normal N(mean, sd^2) at ``outcome`` in closed form (Gneiting & Raftery 2007, eq. 5)."""
+    from scipy import stats
+
+    mean, sd, y = (np.asarray(a, dtype=np.float64) for a in (mean, sd, outcome))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = (y - mean) / sd
+        return sd * (z * (2.0 * stats.norm.cdf(z) - 1.0) + 2.0 * stats.norm.pdf(z) - 1.0 / math.sqrt(math.pi))
+
+
+def _climatology(date: float, outcomes: list[dict]) -> tuple[float, float, int]:
+    """Mean and standard deviation of the amplitudes known on ``date`` (maxima two years past)."""
+    known = [c["amplitude"] for c in outcomes if c["maximum_time"] + KNOWN_AFTER_YEARS <= date]
+    if len(known) < 2:
+        return math.nan, math.nan, len(known)
+    return float(np.mean(known)), float(np.std(known, ddof=1)), len(known)
+
+
+def _score(row: dict, target: dict | None, climate: tuple[float, float, int]) -> dict:
+    out = {"cycle": "", "outcome": math.nan, "outcome_minimum": math.nan, "outcome_maximum": math.nan,
+           "lead": math.nan, "error": math.nan, "relative_error": math.nan, "pit": math.nan,
+           "inside68": math.nan, "inside95": math.nan, "crps": math.nan,
+           "climatology_mean": climate[0], "climatology_sd": climate[1], "climatology_cycles": climate[2],
+           "crps_climatology": math.nan}
+    if target is None:
+        return out
+    y = target["amplitude"]
+    out.update(cycle=target["cycle"], outcome=y, outcome_minimum=target["minimum"],
+               outcome_maximum=target["maximum_time"], lead=row["date"] - target["minimum"])
+    out["crps_climatology"] = float(crps_normal(climate[0], climate[1], y))
+    if row["status"] != "ok":
+        return out
+    sample = row["sample"]
+    out.update(error=row["median"] - y, relative_error=(row["median"] - y) / y,
+               pit=float(np.mean(sample < y) + 0.5 * np.mean(sample == y)),
+               inside68=float(row["low68"] <= y <= row["high68"]),
+               inside95=float(row["low95"] <= y <= row["high95"]),
+               crps=crps_sample(sample, y))
+    return out
+
+
+# --------------------------------------------------------------------------- the batch
+
+
+_NUMERIC = ("maps_used", "sunspot_values_used", "last_map", "calibration_cycles", "median", "low68", "high68",
+            "low95", "high95", "maximum_time", "forecast_minimum", "outcome", "outcome_minimum", "outcome_maximum",
+            "lead", "error", "relative_error", "pit", "inside68", "inside95", "crps", "climatology_mean",
+            "climatology_sd", "climatology_cycles", "crps_climatology")
+_TEXT = ("status", "reason", "projection", "cycle")
+_UNITS = {"date": "year", "last_map": "year", "maximum_time": "year", "forecast_minimum": "year",
+          "outcome_minimum": "year", "outcome_maximum": "year", "lead": "year",
+          **{k: "sunspot number" for k in ("median", "low68", "high68", "low95", "high95", "outcome", "error",
+                                            "crps", "climatology_mean", "climatology_sd", "crps_climatology")}}
+
+
+def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, jobs: int = 1,
+             dask: str | None = None, members: int = 200, seed: int = 0, truth=None,
+             progress: Callable[[int, int], None] | None = None, **forecast_options):
+    """Forecasts as of many dates, each on what existed then, scored where the outcome is known.
+
+    Parameters
+    ----------
+    record : xarray.Dataset
+        The measured record (:func:`polarflux.measure_archive` or :func:`polarflux.read_record`).
+    sunspots : (times, values) or path
+        Decimal years and sunspot numbers, or a CSV for :func:`polarflux.read_sunspots`.
+    dates : array-like, optional
+        Forecast dates (decimal years, datetime64 or ISO dates). By default a calendar
+        grid (:func:`forecast_dates`) across the record wherever three calibration
+        cycles exist by the date; never taken from a truth.
+    every, start, end
+        The default grid's step (``"3M"``, ``"1Y"``, ``"27D"``) and limits.
+    jobs : int
+        Worker processes (a process pool when above 1).
+    dask : str, optional
+        ``"local"`` (a LocalCluster of ``jobs`` workers) or a dask.distributed scheduler address.
+    members, seed : int
+        Monte Carlo members of each forecast; base seed (each date draws its own seed from it).
+    truth : dict or path, optional
+        A scenario's truth (``truth.json``): outcomes from it instead of the sunspot series.
+    progress : callable, optional
+        ``progress(done, total)`` after each finished forecast.
+    **forecast_options
+        Passed to :func:`polarflux.forecast.forecast_from_record` (``proxy``, ``viewing``,
+        ``bases``, ``calibration``).
+
+    Returns
+    -------
+    xarray.Dataset
+        Dim ``date`` (decimal years), one entry per forecast: its status and failure reason,
+        what it saw, the amplitude median and 68/95 % ranges, the outcome, lead and scores
+        (see the module notes), and the Monte Carlo sample ``amplitude_sample(date, member)``.
+    """
+    import xarray as xr
+
+    from .events import read_sunspots
+
+    if int(jobs) < 1:
+        raise SettingsError(f"jobs={jobs} must be at least 1")
+    if int(members) < 10:
+        raise SettingsError(f"members={members} must be at least 10")
+    source = "sunspot series"
+    if isinstance(sunspots, (str, os.PathLike)):
+        source = os.fspath(sunspots)
+        t_ssn, v_ssn = read_sunspots(sunspots)
+    else:
+        t_ssn, v_ssn = (np.asarray(a, dtype=np.float64) for a in sunspots)
+    if dates is None:
+        dates = forecast_dates(record, t_ssn, v_ssn, every=every, start=start, end=end)
+    else:
+        dates = np.unique(_years(dates))
+        if not np.all(np.isfinite(dates)):
+            raise SettingsError("forecast dates must be finite")
+    payload = (record, t_ssn, v_ssn, int(members), int(seed), dict(forecast_options))
+    rows = _run(payload, np.asarray(dates, dtype=np.float64), int(jobs), dask, progress)
+    outcomes = outcomes_from_truth(truth) if truth is not None else outcomes_from_series(t_ssn, v_ssn)
+    n = len(rows)
+    data = {k: np.full(n, np.nan) for k in _NUMERIC}
+    text = {k: [""] * n for k in _TEXT}
+    sample = np.full((n, int(members)), np.nan)
+    for i, row in enumerate(rows):
+        row.update(_score(row, _target(row["date"], outcomes), _climatology(row["date"], outcomes)))
+        for k in _NUMERIC:
+            value = row.get(k)
+            data[k][i] = math.nan if value is None else value
+        for k in _TEXT:
+            text[k][i] = str(row.get(k) or "")
+        if row["sample"] is not None:
+            sample[i, : row["sample"].size] = row["sample"][: int(members)]
+    date_values = np.array([r["date"] for r in rows], dtype=np.float64)
+    utc = from_decimal_year(date_values, True) + _HOUR_NS
+    variables = {k: (("date",), data[k], {"units": _UNITS[k]} if k in _UNITS else {}) for k in _NUMERIC}
+    variables.update({k: (("date",), np.array(v, dtype=str)) for k, v in text.items()})
+    variables["date_utc"] = (("date",), np.array([str(d)[:10] for d in utc.astype("datetime64[D]")], dtype=str))
+    variables["amplitude_sample"] = (("date", "member"), sample, {"units": "sunspot number"})
+    return xr.Dataset(variables, coords={"date": ("date", date_values, {"units": "year (decimal)"})}, attrs={
+        "title": "hindcast: forecasts as of past dates, scored against what followed",
+        "outcome_source": "truth" if truth is not None else f"13-month smoothed maxima of {source}",
+        "sunspots": source, "members": int(members), "seed": int(seed),
+        "forecast_options": json.dumps({k: (v if isinstance(v, (str, int, float, bool)) else repr(v))
+                                        for k, v in forecast_options.items()}),
+        "created_by": f"polarflux {__version__}",
+    })
+
+
+# --------------------------------------------------------------------------- summaries
+
+
+def _proportion(k: int, n: int) -> tuple[float, float, float]:
+    """Fraction and its exact (Clopper-Pearson) binomial 95 % interval."""
+    if n == 0:
+        return math.nan, math.nan, math.nan
+    from scipy import stats
+
+    ci = stats.binomtest(int(k), int(n)).proportion_ci(0.95, method="exact")
+    return k / n, float(ci.low), float(ci.high)
+
+
+def summarise(result, lead_range: tuple[float, float] | None = None) -> dict:
+    """Scores of the forecasts whose lead lies in ``[low, high)`` (all forecasts when None).
+
+    Returns
+    -------
+    dict
+        ``forecasts``, ``failures``, ``scored``, ``median_abs_relative_error``,
+        ``coverage68`` and ``coverage95`` (fraction, low, high: exact binomial 95 %
+        interval), ``crps`` (mean), ``crps_climatology`` (mean over the same forecasts)
+        and ``crps_skill`` = 1 - crps / crps_climatology.
+    """
+    lead = result["lead"].values
+    pick = np.ones(lead.shape, dtype=bool) if lead_range is None else (lead >= lead_range[0]) & (
+        lead < lead_range[1])
+    ok = result["status"].values == "ok"
+    scored = pick & ok & np.isfinite(result["outcome"].values)
+    n = int(scored.sum())
+    rel = np.abs(result["relative_error"].values[scored])
+    both = scored & np.isfinite(result["crps_climatology"].values)
+    crps = float(np.mean(result["crps"].values[both])) if both.any() else math.nan
+    climate = float(np.mean(result["crps_climatology"].values[both])) if both.any() else math.nan
+    return {
+        "lead_range": lead_range,
+        "forecasts": int(pick.sum()),
+        "failures": int((pick & ~ok).sum()),
+        "scored": n,
+        "median_abs_relative_error": float(np.median(rel)) if n else math.nan,
+        "coverage68": _proportion(int(np.sum(result["inside68"].values[scored] > 0.5)), n),
+        "coverage95": _proportion(int(np.sum(result["inside95"].values[scored] > 0.5)), n),
+        "crps": crps,
+        "crps_climatology": climate,
+        "crps_skill": 1.0 - crps / climate if climate > 0 else math.nan,
+    }
+
+
+def lead_table(result, edges: Sequence[float] = LEAD_EDGES) -> list[dict]:
+    """:func:`summarise` per lead bin ``[edges[i], edges[i + 1])``, the last bin closed."""
+    rows = []
+    for k, (a, b) in enumerate(zip(edges[:-1], edges[1:], strict=True)):
+        rows.append(summarise(result, (a, b + (1e-9 if k == len(edges) - 2 else 0.0))))
+        rows[-1]["lead_range"] = (a, b)
+    return rows
+
+
+def _fmt_cov(c: tuple[float, float, float]) -> str:
+    return "   n/a          " if not np.isfinite(c[0]) else f"{c[0]:.2f} [{c[1]:.2f}, {c[2]:.2f}]"
+
+
+def format_lead_table(rows: list[dict]) -> str:
+    """The table by lead as plain text."""
+    lines = [f"{'lead (yr)':>13} {'n':>4} {'fail':>4} {'med|rel err|':>12} {'68 % coverage':>18} "
+             f"{'95 % coverage':>18} {'CRPS':>7} {'CRPS clim':>9} {'skill':>6}"]
+    for r in rows:
+        a, b = r["lead_range"]
+        lines.append(f"{a:+5.1f} to {b:+4.1f} {r['scored']:>4} {r['failures']:>4} "
+                     f"{100 * r['median_abs_relative_error']:>11.1f}% {_fmt_cov(r['coverage68']):>18} "
+                     f"{_fmt_cov(r['coverage95']):>18} {r['crps']:>7.1f} {r['crps_climatology']:>9.1f} "
+                     f"{r['crps_skill']:>6.2f}")
+    return "\n".join(lines)
+
+
+def summary_line(result, window: tuple[float, float] = (-2.0, 1.0)) -> str:
+    """One line: forecasts, failures, median |relative error| (all and in ``window``), coverage, CRPS skill."""
+    every = summarise(result)
+    inner = summarise(result, window)
+    return (f"{every['forecasts']} forecasts, {every['failures']} failed, {every['scored']} scored; "
+            f"median |relative error| {100 * every['median_abs_relative_error']:.1f} % (all), "
+            f"{100 * inner['median_abs_relative_error']:.1f} % (leads {window[0]:+g} to {window[1]:+g} yr); "
+            f"68 % coverage {_fmt_cov(every['coverage68'])}; 95 % coverage {_fmt_cov(every['coverage95'])}; "
+            f"CRPS skill {every['crps_skill']:.2f}")
+
+
+# --------------------------------------------------------------------------- outputs
+
+CSV_COLUMNS = ("date", "date_utc", "status", "reason", "maps_used", "last_map", "sunspot_values_used",
+               "calibration_cycles", "projection", "median", "low68", "high68", "low95", "high95", "maximum_time",
+               "forecast_minimum", "cycle", "outcome", "outcome_minimum", "outcome_maximum", "lead", "error",
+               "relative_error", "pit", "inside68", "inside95", "crps", "climatology_mean", "climatology_sd",
+               "climatology_cycles", "crps_climatology")
+
+
+def _cell(value) -> str:
+    if isinstance(value, (float, np.floating)):
+        return "" if not np.isfinite(value) else repr(float(value))
+    return str(value)
+
+
+def _safe(label: str) -> str:
+    return re.sub(r"[^A-Za-z0-9.]+", "_", label).strip("_") or "cycle"
+
+
+def hindcast_outputs(result, prefix) -> dict:
+    """The files :func:`write_hindcast` makes, by kind: csv, leads, pit, error_lead and one per cycle."""
+    prefix = os.fspath(prefix)
+    out = {"csv": Path(f"{prefix}_hindcast.csv"), "leads": Path(f"{prefix}_hindcast_leads.csv"),
+           "pit": Path(f"{prefix}_hindcast_pit.png"), "error_lead": Path(f"{prefix}_hindcast_error_lead.png")}
+    for label in dict.fromkeys(str(c) for c in result["cycle"].values if str(c)):
+        out[f"cycle:{label}"] = Path(f"{prefix}_hindcast_{_safe(label)}.png")
+    return out
+
+
+def write_hindcast(result, prefix, force: bool = False, caption: str | None = None) -> list[Path]:
+    """Write the table of every forecast (CSV), the table by lead (CSV) and the figures.
+
+    Files: ``PREFIX_hindcast.csv``, ``PREFIX_hindcast_leads.csv``, ``PREFIX_hindcast_pit.png``,
+    ``PREFIX_hindcast_error_lead.png`` and ``PREFIX_hindcast_<cycle>.png`` per cycle forecast.
+    Every output is checked before any is written; each is written atomically and an
+    existing one is only replaced with ``force``.
+
+    Raises
+    ------
+    OutputExistsError
+        When an output exists and ``force`` is False (nothing is written then).
+    """
+    import csv
+
+    from ._hindcast_plots import plot_cycle_evolution, plot_error_by_lead, plot_pit
+    from ._io import atomic_path, check_writable
+    from .report import save_figure
+
+    paths = hindcast_outputs(result, prefix)
+    for path in paths.values():
+        check_writable(path, force)
+    caption = caption or (f"hindcast of the polarflux forecast; outcomes: {result.attrs.get('outcome_source')}; "
+                          f"{result.attrs.get('created_by', '')}")
+    with atomic_path(paths["csv"], force=force) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(CSV_COLUMNS)
+        for i in range(result.sizes["date"]):
+            writer.writerow([_cell(result["date"].values[i]) if c == "date" else _cell(result[c].values[i])
+                             for c in CSV_COLUMNS])
+    with atomic_path(paths["leads"], force=force) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
+        writer = csv.writer(handle)
+        writer.writerow(["lead_from", "lead_to", "forecasts", "failures", "scored", "median_abs_relative_error",
+                         "coverage68", "coverage68_low", "coverage68_high", "coverage95", "coverage95_low",
+                         "coverage95_high", "crps", "crps_climatology", "crps_skill"])
+        for r in [*lead_table(result), summarise(result)]:
+            a, b = r["lead_range"] or ("all", "all")
+            writer.writerow([a, b, r["forecasts"], r["failures"], r["scored"],
+                             _cell(r["median_abs_relative_error"]), *map(_cell, r["coverage68"]),
+                             *map(_cell, r["coverage95"]), _cell(r["crps"]), _cell(r["crps_climatology"]),
+                             _cell(r["crps_skill"])])
+    save_figure(plot_pit(result, caption=caption), paths["pit"], force=force)
+    save_figure(plot_error_by_lead(result, caption=caption), paths["error_lead"], force=force)
+    for kind, path in paths.items():
+        if kind.startswith("cycle:"):
+            save_figure(plot_cycle_evolution(result, kind[6:], caption=caption), path, force=force)
+    return list(paths.values())
