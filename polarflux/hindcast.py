@@ -660,77 +660,25 @@ def summary_line(result, window: tuple[float, float] = (-2.0, 1.0)) -> str:
 
 # --------------------------------------------------------------------------- outputs
 
-CSV_COLUMNS = ("date", "date_utc", "status", "reason", "maps_used", "last_map", "sunspot_values_used",
-               "calibration_cycles", "projection", "median", "low68", "high68", "low95", "high95", "maximum_time",
-               "forecast_minimum", "cycle", "outcome", "outcome_minimum", "outcome_maximum", "lead", "error",
-               "relative_error", "pit", "inside68", "inside95", "crps", "climatology_mean", "climatology_sd",
-               "climatology_cycles", "crps_climatology")
-
-
-def _cell(value) -> str:
-    if isinstance(value, (float, np.floating)):
-        return "" if not np.isfinite(value) else repr(float(value))
-    return str(value)
-
-
-def _safe(label: str) -> str:
-    return re.sub(r"[^A-Za-z0-9.]+", "_", label).strip("_") or "cycle"
-
-
-def hindcast_outputs(result, prefix) -> dict:
-    """The files :func:`write_hindcast` makes, by kind: csv, leads, pit, error_lead and one per cycle."""
-    prefix = os.fspath(prefix)
-    out = {"csv": Path(f"{prefix}_hindcast.csv"), "leads": Path(f"{prefix}_hindcast_leads.csv"),
-           "pit": Path(f"{prefix}_hindcast_pit.png"), "error_lead": Path(f"{prefix}_hindcast_error_lead.png")}
-    for label in dict.fromkeys(str(c) for c in result["cycle"].values if str(c)):
-        out[f"cycle:{label}"] = Path(f"{prefix}_hindcast_{_safe(label)}.png")
-    return out
-
 
 def write_hindcast(result, prefix, force: bool = False, caption: str | None = None) -> list[Path]:
     """Write the table of every forecast (CSV), the table by lead (CSV) and the figures.
 
-    Files: ``PREFIX_hindcast.csv``, ``PREFIX_hindcast_leads.csv``, ``PREFIX_hindcast_pit.png``,
-    ``PREFIX_hindcast_error_lead.png`` and ``PREFIX_hindcast_<cycle>.png`` per cycle forecast.
-    Every output is checked before any is written; each is written atomically and an
-    existing one is only replaced with ``force``.
+    Files: ``PREFIX_hindcast.csv`` (columns :data:`polarflux._hindcast_plots.CSV_COLUMNS`),
+    ``PREFIX_hindcast_leads.csv``, ``PREFIX_hindcast_pit.png``, ``PREFIX_hindcast_error_lead.png``
+    and ``PREFIX_hindcast_<cycle>.png`` per cycle forecast. Every output is checked before
+    any is written; each is written atomically and an existing one is replaced only with ``force``.
+
+    Returns
+    -------
+    list of Path
+        The files written.
 
     Raises
     ------
     OutputExistsError
         When an output exists and ``force`` is False (nothing is written then).
     """
-    import csv
+    from ._hindcast_plots import write_outputs
 
-    from ._hindcast_plots import plot_cycle_evolution, plot_error_by_lead, plot_pit
-    from ._io import atomic_path, check_writable
-    from .report import save_figure
-
-    paths = hindcast_outputs(result, prefix)
-    for path in paths.values():
-        check_writable(path, force)
-    caption = caption or (f"hindcast of the polarflux forecast; outcomes: {result.attrs.get('outcome_source')}; "
-                          f"{result.attrs.get('created_by', '')}")
-    with atomic_path(paths["csv"], force=force) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
-        writer = csv.writer(handle)
-        writer.writerow(CSV_COLUMNS)
-        for i in range(result.sizes["date"]):
-            writer.writerow([_cell(result["date"].values[i]) if c == "date" else _cell(result[c].values[i])
-                             for c in CSV_COLUMNS])
-    with atomic_path(paths["leads"], force=force) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
-        writer = csv.writer(handle)
-        writer.writerow(["lead_from", "lead_to", "forecasts", "failures", "scored", "median_abs_relative_error",
-                         "coverage68", "coverage68_low", "coverage68_high", "coverage95", "coverage95_low",
-                         "coverage95_high", "crps", "crps_climatology", "crps_skill"])
-        for r in [*lead_table(result), summarise(result)]:
-            a, b = r["lead_range"] or ("all", "all")
-            writer.writerow([a, b, r["forecasts"], r["failures"], r["scored"],
-                             _cell(r["median_abs_relative_error"]), *map(_cell, r["coverage68"]),
-                             *map(_cell, r["coverage95"]), _cell(r["crps"]), _cell(r["crps_climatology"]),
-                             _cell(r["crps_skill"])])
-    save_figure(plot_pit(result, caption=caption), paths["pit"], force=force)
-    save_figure(plot_error_by_lead(result, caption=caption), paths["error_lead"], force=force)
-    for kind, path in paths.items():
-        if kind.startswith("cycle:"):
-            save_figure(plot_cycle_evolution(result, kind[6:], caption=caption), path, force=force)
-    return list(paths.values())
+    return write_outputs(result, prefix, force=force, caption=caption)
