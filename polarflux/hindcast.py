@@ -212,21 +212,21 @@ def forecast_dates(record, sunspot_times, sunspot_values, every="3M", start=None
     ndarray
         Decimal years. Nothing here looks at any truth or at data after each date.
     """
-    t_rec = to_decimal_year(record["time"].values)[0]
-    t_rec = t_rec[np.isfinite(t_rec)]
-    if t_rec.size == 0:
+    times = record["time"].values.astype("datetime64[ns]")
+    times = np.sort(times[~np.isnat(times)])
+    if times.size == 0:
         raise SettingsError("the record holds no dated map")
+    t_rec = to_decimal_year(times)[0]
+    available = to_decimal_year(map_available(times))[0]
     t_ssn = np.asarray(sunspot_times, dtype=np.float64)
     v_ssn = np.asarray(sunspot_values, dtype=np.float64)
-    lo = float(t_rec.min()) if start is None else float(_years(start)[0])
-    hi = float(to_decimal_year(map_available(record["time"].values.max()[None]))[0][0]) if end is None \
-        else float(_years(end)[0])
+    lo = float(t_rec[0]) if start is None else float(_years(start)[0])
+    hi = float(available[-1]) if end is None else float(_years(end)[0])
     grid = _grid(lo, hi, every)
     keep = []
     for date in grid:
-        past = t_rec[to_decimal_year(map_available(from_decimal_year(t_rec, True)))[0] <= date]
         ts, vs = cut_sunspots(t_ssn, v_ssn, date)
-        keep.append(_calibration_cycles(np.sort(past), ts, vs) >= min_cycles)
+        keep.append(_calibration_cycles(t_rec[available <= date], ts, vs) >= min_cycles)
     return grid[np.array(keep, dtype=bool)] if grid.size else grid
 
 
@@ -537,6 +537,10 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
         t_ssn, v_ssn = (np.asarray(a, dtype=np.float64) for a in sunspots)
     if dates is None:
         dates = forecast_dates(record, t_ssn, v_ssn, every=every, start=start, end=end)
+        if dates.size == 0:
+            raise SettingsError(f"no forecast date every {every}: on no date between the limits do the record and "
+                                f"{source} hold three cycles to calibrate on (a minimum the record covers, "
+                                "with the maximum after it known)")
     else:
         dates = np.unique(_years(dates))
         if not np.all(np.isfinite(dates)):

@@ -213,6 +213,13 @@ def test_default_dates_are_a_calendar_grid_where_three_cycles_can_calibrate(worl
         forecast_dates(record, t, v, every="quarterly")
 
 
+def test_no_date_with_three_cycles_is_one_clear_error(world):
+    record, t, v = world
+    short = record.isel(time=slice(0, 13 * 20))  # 2000-2019: two minima covered, never three
+    with pytest.raises(pf.SettingsError, match="no forecast date every 3M.*three cycles"):
+        hindcast(short, (t, v))
+
+
 def test_a_failing_date_is_recorded_and_the_batch_goes_on(world):
     record, t, v = world
     result = hindcast(record, (t, v), [2005.0, 2046.0], members=30)
