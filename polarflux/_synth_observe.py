@@ -129,24 +129,35 @@ def observe_los(composite_br: np.ndarray, b0_model: np.ndarray, model_grid, inst
 class MeridianPlan:
     """When each longitude of each Carrington rotation crosses the central meridian, and B0 then.
 
-    Times come from ``sunpy.coordinates.sun.carrington_rotation_time`` at the start,
-    middle and end of every rotation and B0 from ``sunpy.coordinates.sun.B0`` at those
-    times, each interpolated by a cubic spline (both are smooth: a year-long
-    periodic term on a steady drift; nodes half a rotation apart keep the error
-    below a minute and 0.001 degree).
+    Times come from ``sunpy.coordinates.sun.carrington_rotation_time`` at the middle
+    of every rotation (and the start of the first and the end of the last), B0 from
+    ``sunpy.coordinates.sun.B0`` at those times; both are interpolated by cubic
+    splines (both are smooth: a steady drift plus a year-long periodic term; nodes
+    one rotation apart keep the error near 0.001 day and 0.005 degree).
+
+    Parameters
+    ----------
+    numbers : Carrington rotation numbers of the scenario.
+    mids : their mid-rotation times (Time), as the scenario computed them.
+    b0_mids : B0 at ``mids`` in degrees.
+    start : the scenario's start (Time).
     """
 
-    def __init__(self, numbers: np.ndarray, start) -> None:
+    def __init__(self, numbers: np.ndarray, mids, b0_mids: np.ndarray, start) -> None:
         from scipy.interpolate import CubicSpline
         from sunpy.coordinates.sun import B0, carrington_rotation_time
 
         self.numbers = np.asarray(numbers)
         self.start = start
-        nodes = np.unique(np.concatenate([self.numbers, self.numbers + 0.5, self.numbers + 1.0]).astype(float))
-        times = carrington_rotation_time(nodes)
-        years = (times - start).to_value("day") / 365.25
+        ends = np.array([self.numbers[0], self.numbers[-1] + 1.0], dtype=float)
+        end_times = carrington_rotation_time(ends)
+        nodes = np.concatenate([[ends[0]], self.numbers + 0.5, [ends[1]]])
+        years = np.concatenate([(end_times[:1] - start).to_value("day"), (mids - start).to_value("day"),
+                                (end_times[1:] - start).to_value("day")]) / 365.25
+        b0 = np.concatenate([np.atleast_1d(B0(end_times[:1]).to_value("deg")), np.asarray(b0_mids, dtype=float),
+                             np.atleast_1d(B0(end_times[1:]).to_value("deg"))])
         self._years = CubicSpline(nodes, years)
-        self._b0 = CubicSpline(years, np.atleast_1d(B0(times).to_value("deg")))
+        self._b0 = CubicSpline(years, b0)
 
     def column_years(self, k: int, lon_deg: np.ndarray) -> np.ndarray:
         """Years from the start at which the columns at ``lon_deg`` of rotation index ``k`` are observed."""
@@ -174,12 +185,12 @@ class MeridianPlan:
                "OBSMODE": ("CENTRAL-MERIDIAN", "columns observed at central meridian"),
                "DATE-BEG": (first.isot, "first column observed"), "DATE-END": (last.isot, "last column observed"),
                "CRLT_OBS": (float(b0_mid), "[deg] B0 at DATE-OBS")}
-        out["TCOLNOTE"] = ("sum_k C_k x^k with x = (CRLN - 180) / 180", "TCOLk and B0COLk polynomials")
+        out["TCOLNOTE"] = ("sum_k C_k x^k, x = (CRLN - 180) / 180", "TCOLk, B0COLk")
         for i, c in enumerate(t_coef):
-            out[f"TCOL{i}"] = (float(c), "[d] column MJD(UTC), see TCOL0")
+            out[f"TCOL{i}"] = (float(c), "[d] column MJD(UTC), see TCOLNOTE")
         out["TCOLERR"] = (t_err, "[d] largest TCOL polynomial error")
         for i, c in enumerate(b_coef):
-            out[f"B0COL{i}"] = (float(c), "[deg] column B0, see TCOL0")
+            out[f"B0COL{i}"] = (float(c), "[deg] column B0, see TCOLNOTE")
         out["B0COLERR"] = (b_err, "[deg] largest B0COL polynomial error")
         out["LIMBANG"] = (float(limb_angle), "[deg] blank where |lat - B0| > LIMBANG")
         return out

@@ -407,7 +407,7 @@ class _Run:
                     for k in range(len(numbers)) if k not in missing}
         observed = {k: v for k, v in observed.items() if v}
         if s.observation == "los-meridian":
-            self.plan = observe.MeridianPlan(numbers, Time(s.start, scale="utc"))
+            self.plan = observe.MeridianPlan(numbers, mids, b0, Time(s.start, scale="utc"))
             self.recorder = observe.MeridianRecorder(self.plan, grid, s.step_days / 365.25, observed)
             self.recorder(self.stepper)
         series, next_cycle = [], 1
@@ -514,7 +514,7 @@ PRESETS = {
         "diffusivity": 700.0,
         "flow_speed": 14.0,
         "flow_cutoff_latitude": 90.0,
-        "flow_cycle_sensitivity": 0.5,
+        "flow_cycle_sensitivity": 0.3,
         "flow_cycle_scatter": 0.10,
         "decay_time": 6.0,
         "precursor_exponent": 1.4,
@@ -522,7 +522,7 @@ PRESETS = {
         "tilt_scatter": 15.0,
         "anti_hale_fraction": 0.05,
         "large_regions_per_cycle": 3.0,
-        "large_region_flux": 2e22,
+        "large_region_flux": 1e23,
         "hemispheric_asymmetry": 0.15,
         "observation": "los-meridian",
         "long_gaps": 2,
@@ -550,4 +550,5 @@ def settings_for(resolution: str = "standard", preset: str | None = None, **chan
     per_instrument = overrides.pop("instruments", {})
     instruments = tuple(replace(i, nlat=g[0], nlon=g[1], **per_instrument.get(i.name, {}))
                         for i, g in zip(base.instruments, grids, strict=True))
-    return replace(base, model_nlat=nlat, model_nlon=nlon, instruments=instruments, **{**overrides, **changes})
+    grid = {"model_nlat": nlat, "model_nlon": nlon, "instruments": instruments}
+    return replace(base, **{**grid, **overrides, **changes})

@@ -216,3 +216,19 @@ def test_committed_sample_is_the_default_scenario():
         assert np.isfinite(m.values).mean() > 0.8
     total = sum(p.stat().st_size for p in folder.rglob("*") if p.is_file())
     assert total < 3_000_000  # a few MB at most
+
+
+def test_committed_sunspots_keep_their_columns_first_and_read():
+    from pathlib import Path
+
+    from polarflux.sunspots import read_sunspots
+
+    path = Path(__file__).resolve().parents[1] / "synthetic_maps" / "sunspots.csv"
+    rows = read_csv(path)
+    assert list(rows[0]) == ["date", "sunspot_number", "sunspot_number_north", "sunspot_number_south"]
+    times, values = read_sunspots(path)
+    assert times.size == len(rows) and np.all(values >= 0)
+    # the hemispheres of the default world share activity equally (no asymmetry set)
+    north = sum(float(r["sunspot_number_north"]) for r in rows)
+    south = sum(float(r["sunspot_number_south"]) for r in rows)
+    assert north == pytest.approx(south, rel=0.01)
