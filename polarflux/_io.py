@@ -17,7 +17,7 @@ def check_writable(path: os.PathLike | str, force: bool) -> Path:
     """Refuse an existing output unless ``force``; return the path."""
     path = Path(path)
     if path.exists() and not force:
-        raise OutputExistsError(f"{path}: output exists; pass --force (force=True) to overwrite it")
+        raise OutputExistsError(f"{path}: exists already and was not replaced")
     if path.is_dir():
         raise OutputExistsError(f"{path}: is a directory, not an output file")
     return path

@@ -1,60 +1,54 @@
-"""A small progress bar for long batches, drawn only on a terminal."""
+"""Progress of long batches: a tqdm bar, drawn only on a terminal so logs and pipes stay clean."""
 
 from __future__ import annotations
 
 import sys
-import time
 from typing import TextIO
+
+from tqdm import tqdm
+
+__all__ = ["Progress"]
 
 
 class Progress:
-    """Progress of ``total`` items on ``stream`` (stderr), redrawn at most 10 times a second.
+    """Progress of ``total`` items on ``stream`` (stderr), with a count of failures.
 
-    Off when the stream is not a terminal, so logs and pipes stay clean.
+    ``enabled=None`` draws the bar only when the stream is a terminal; messages are
+    printed either way, above the bar.
     """
 
-    def __init__(self, total: int, label: str = "", stream: TextIO | None = None, enabled: bool | None = None):
-        self.total = max(int(total), 0)
-        self.done = 0
-        self.failed = 0
-        self.label = label
+    def __init__(self, total: int, label: str = "", stream: TextIO | None = None, enabled: bool | None = None,
+                 unit: str = "map"):
         self.stream = stream if stream is not None else sys.stderr
-        isatty = getattr(self.stream, "isatty", lambda: False)
-        self.enabled = isatty() if enabled is None else enabled
-        self._start = time.monotonic()
-        self._last = 0.0
+        if enabled is None:
+            enabled = bool(getattr(self.stream, "isatty", lambda: False)())
+        self.failed = 0
+        self.done = 0
+        self._bar = tqdm(total=max(int(total), 0), desc=label, unit=unit, file=self.stream, disable=not enabled,
+                         leave=False, dynamic_ncols=True)
 
-    def step(self, failed: bool = False) -> None:
-        self.done += 1
-        self.failed += int(failed)
-        now = time.monotonic()
-        if self.enabled and (now - self._last > 0.1 or self.done == self.total):
-            self._last = now
-            self._draw(now)
+    @property
+    def total(self) -> int:
+        return int(self._bar.total or 0)
+
+    @total.setter
+    def total(self, value: int) -> None:
+        self._bar.total = int(value)
+        self._bar.refresh()
+
+    def step(self, failed: bool = False, count: int = 1) -> None:
+        self.done += count
+        if failed:
+            self.failed += 1
+            self._bar.set_postfix_str(f"{self.failed} failed", refresh=False)
+        self._bar.update(count)
 
     def message(self, text: str) -> None:
         """Print a line above the bar."""
-        if self.enabled:
-            self.stream.write("\r\x1b[2K")
-        self.stream.write(text + "\n")
-        if self.enabled and self.done:
-            self._draw(time.monotonic())
-        self.stream.flush()
+        if self._bar.disable:
+            print(text, file=self.stream, flush=True)
+        else:
+            self._bar.write(text, file=self.stream)
 
     def close(self) -> None:
-        if self.enabled:
-            self.stream.write("\r\x1b[2K")
-            self.stream.flush()
-
-    def _draw(self, now: float) -> None:
-        width = 30
-        fraction = self.done / self.total if self.total else 1.0
-        filled = int(round(width * fraction))
-        rate = self.done / max(now - self._start, 1e-9)
-        remaining = (self.total - self.done) / rate if rate > 0 else 0.0
-        bar = "#" * filled + "-" * (width - filled)
-        failed = f", {self.failed} failed" if self.failed else ""
-        self.stream.write(
-            f"\r{self.label} [{bar}] {self.done}/{self.total}{failed}  {rate:.1f}/s  ~{remaining:.0f}s left"
-        )
-        self.stream.flush()
+        self._bar.close()

@@ -40,8 +40,8 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from .errors import SettingsError
-from .events import RECORD_MIN_COUNT, running_mean
 from .maps import quiet_time_warnings
+from .timeseries import RECORD_MIN_COUNT, running_mean
 
 __all__ = ["ScaleFactor", "deming_through_origin", "cross_calibrate", "merge_instruments", "VIEWING_METHODS"]
 

@@ -7,15 +7,22 @@ the same kind they were given.
 
 from __future__ import annotations
 
-import csv
 import math
-import os
 from dataclasses import dataclass
 from typing import NamedTuple
 
 import numpy as np
 
-from .errors import PolarfluxError, SettingsError
+from .calibration import merge_instruments
+from .errors import SettingsError
+from .sunspots import read_sunspots
+from .timeseries import (
+    RECORD_MIN_COUNT,
+    from_decimal_year,
+    running_mean,
+    smooth_13_month,
+    to_decimal_year,
+)
 
 __all__ = [
     "smooth_13_month",
@@ -30,88 +37,6 @@ __all__ = [
     "from_decimal_year",
     "record_events",
 ]
-
-_WEIGHTS_13 = np.array([0.5] + [1.0] * 11 + [0.5]) / 12.0
-
-
-def smooth_13_month(values) -> np.ndarray:
-    """The 13-month running mean with half weights at both ends (the trade's standard smoothing).
-
-    S_i = (x_{i-6} / 2 + x_{i-5} + ... + x_{i+5} + x_{i+6} / 2) / 12 for a monthly
-    series. Where the 13-month window is incomplete (the first and last six
-    months) or holds a missing value, the result is NaN: gaps stay gaps.
-    """
-    x = np.asarray(values, dtype=np.float64)
-    out = np.full(x.shape, np.nan)
-    if x.size < 13:
-        return out
-    filled = np.where(np.isnan(x), 0.0, x)
-    smooth = np.convolve(filled, _WEIGHTS_13, mode="valid")
-    holes = np.convolve(np.isnan(x).astype(float), np.ones(13), mode="valid") > 0
-    smooth[holes] = np.nan
-    out[6:-6] = smooth
-    return out
-
-
-def running_mean(values, n: int, min_count: int | None = None) -> np.ndarray:
-    """Centred running mean over ``n`` samples (odd n) of the finite values in each window.
-
-    A window needs at least ``min_count`` finite values (default: all ``n``);
-    otherwise, and where the window runs past either end, the result is NaN.
-    Missing values are never taken as zeros.
-    """
-    n = int(n)
-    if n < 1 or n % 2 == 0:
-        raise SettingsError(f"running mean length {n} must be a positive odd number")
-    need = n if min_count is None else int(min_count)
-    if not 1 <= need <= n:
-        raise SettingsError(f"min_count={min_count} must lie between 1 and {n}")
-    x = np.asarray(values, dtype=np.float64)
-    out = np.full(x.shape, np.nan)
-    if x.size < n:
-        return out
-    half = n // 2
-    finite = np.isfinite(x)
-    sums = np.convolve(np.where(finite, x, 0.0), np.ones(n), mode="valid")
-    counts = np.convolve(finite.astype(float), np.ones(n), mode="valid")
-    mean = np.divide(sums, counts, out=np.full(sums.shape, np.nan), where=counts >= need)
-    out[half: x.size - half] = mean
-    return out
-
-
-#: Entries a 13-rotation running mean of the record needs: two thirds of the window,
-#: so that a missing rotation or two do not open a gap a year wide.
-RECORD_MIN_COUNT = 9
-
-
-# --------------------------------------------------------------------------- times
-
-
-def to_decimal_year(times) -> tuple[np.ndarray, bool]:
-    """Decimal years of ``times`` (floats or datetime64); the flag says they were datetimes."""
-    arr = np.asarray(times)
-    if np.issubdtype(arr.dtype, np.datetime64):
-        ns = arr.astype("datetime64[ns]")
-        years = ns.astype("datetime64[Y]")
-        start = years.astype("datetime64[ns]")
-        end = (years + 1).astype("datetime64[ns]")
-        fraction = (ns - start).astype(np.float64) / (end - start).astype(np.float64)
-        out = years.astype(np.int64) + 1970 + fraction
-        out[np.isnat(ns)] = np.nan
-        return out.astype(np.float64), True
-    return arr.astype(np.float64), False
-
-
-def from_decimal_year(years, as_datetime: bool):
-    years = np.asarray(years, dtype=np.float64)
-    if not as_datetime:
-        return years
-    whole = np.floor(years)
-    start = (whole - 1970).astype(np.int64).astype("datetime64[Y]").astype("datetime64[ns]")
-    end = (whole - 1970 + 1).astype(np.int64).astype("datetime64[Y]").astype("datetime64[ns]")
-    span = (end - start).astype(np.float64)
-    return start + ((years - whole) * span).astype(np.int64).astype("timedelta64[ns]")
-
 
 # --------------------------------------------------------------------------- cycles
 
@@ -200,54 +125,6 @@ def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> Cycl
     return CycleExtrema(mins, maxs)
 
 
-def read_sunspots(path: str | os.PathLike) -> tuple[np.ndarray, np.ndarray]:
-    """Read a sunspot-number series from CSV.
-
-    Columns (a header row is required): ``date`` (ISO date, ``YYYY-MM-DD`` or
-    ``YYYY-MM``) or ``year`` (decimal year), and ``sunspot_number``. Monthly or
-    yearly rows, in increasing time. Empty ``sunspot_number`` cells are gaps.
-
-    Returns decimal years and values. Raises PolarfluxError naming the file and the
-    line for missing columns, non-numeric values or times out of order.
-    """
-    source = os.fspath(path)
-    try:
-        handle = open(source, newline="", encoding="utf-8")
-    except OSError as exc:
-        raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
-    with handle:
-        reader = csv.DictReader(handle)
-        fields = [f.strip().lower() for f in (reader.fieldnames or [])]
-        reader.fieldnames = fields
-        if "sunspot_number" not in fields or not ({"date", "year"} & set(fields)):
-            raise PolarfluxError(
-                f"{source}: needs columns 'date' (or 'year') and 'sunspot_number'; found {', '.join(fields) or 'none'}"
-            )
-        times, values = [], []
-        for line, row in enumerate(reader, start=2):
-            try:
-                if "date" in fields and row.get("date"):
-                    times.append(float(to_decimal_year(np.array([np.datetime64(row["date"].strip(), "D")]))[0][0]))
-                else:
-                    times.append(float(row["year"]))
-            except (ValueError, TypeError):
-                raise PolarfluxError(f"{source}: line {line}: time {row.get('date') or row.get('year')!r} "
-                                     "is not a date or a year") from None
-            text = (row.get("sunspot_number") or "").strip()
-            try:
-                values.append(float(text) if text else math.nan)
-            except ValueError:
-                raise PolarfluxError(f"{source}: line {line}: sunspot_number {text!r} is not a number") from None
-    t = np.array(times)
-    if t.size < 2:
-        raise PolarfluxError(f"{source}: needs at least two rows")
-    bad = np.flatnonzero(np.diff(t) <= 0)
-    if bad.size:
-        raise PolarfluxError(f"{source}: line {bad[0] + 3}: times must increase (row {bad[0] + 3} is not after "
-                             "the row before it)")
-    return t, np.array(values)
-
-
 # --------------------------------------------------------------------------- reversals
 
 
@@ -255,9 +132,10 @@ def read_sunspots(path: str | os.PathLike) -> tuple[np.ndarray, np.ndarray]:
 class Reversal:
     """A polar reversal: the sign change of the smoothed signed polar flux.
 
-    ``time`` is the middle of the window from the first to the last crossing of
-    zero within ``merge_years`` of each other; a single crossing has a window of
-    zero width (plus the sampling interval). ``new_sign`` is the sign afterwards.
+    ``time`` is the middle of the first and last crossings of zero of the smoothed
+    series within ``merge_years`` of each other (``crossings`` counts them);
+    ``earliest`` to ``latest`` is the window in which single maps show either sign
+    (see :func:`find_reversals`). ``new_sign`` is the sign afterwards.
     """
 
     hemisphere: str
@@ -280,7 +158,8 @@ def _crossings(t: np.ndarray, y: np.ndarray) -> list[tuple[float, int]]:
     return out
 
 
-def find_reversals(record, variable: str = "signed_flux", smoothing: int = 13, merge_years: float = 2.0):
+def find_reversals(record, variable: str = "signed_flux", smoothing: int = 13, merge_years: float = 2.0,
+                   window_years: float = 1.0):
     """Polar reversals per hemisphere of a record: where the smoothed polar flux changes sign.
 
     Parameters
@@ -295,7 +174,11 @@ def find_reversals(record, variable: str = "signed_flux", smoothing: int = 13, m
         Running mean over this many entries (13 rotations, about a year, which also
         averages out the yearly viewing wobble).
     merge_years : float
-        Crossings closer than this are one reversal with an uncertainty window.
+        Crossings of the smoothed series closer than this are one reversal.
+    window_years : float
+        The reversal's window (``earliest`` to ``latest``) spans its smoothed
+        crossings and every sign change of the single maps' values within this
+        many years of them: the time in which the cap shows either sign.
 
     Returns
     -------
@@ -304,8 +187,6 @@ def find_reversals(record, variable: str = "signed_flux", smoothing: int = 13, m
     """
     instruments = {str(x) for x in record["instrument"].values} if "instrument" in record else set()
     if len(instruments) > 1:  # several instruments: bring them onto one scale first
-        from .calibration import merge_instruments
-
         record = merge_instruments(record)
     t, _ = to_decimal_year(record["time"].values)
     out = {}
@@ -319,12 +200,16 @@ def find_reversals(record, variable: str = "signed_flux", smoothing: int = 13, m
                 groups[-1].append(crossing)
             else:
                 groups.append([crossing])
+        raw = [c[0] for c in _crossings(t, record[variable].sel(hemisphere=hemisphere).values)]
         reversals = []
         for g in groups:
             if len(g) % 2 == 0:
                 continue  # crossed and crossed back: no lasting change of sign
             first, last = g[0][0], g[-1][0]
-            reversals.append(Reversal(hemisphere, 0.5 * (first + last), first, last, len(g), g[-1][1]))
+            # the window: where the single maps already (or still) show either sign
+            near = [c for c in raw if first - window_years <= c <= last + window_years]
+            earliest, latest = min([first, *near]), max([last, *near])
+            reversals.append(Reversal(hemisphere, 0.5 * (first + last), earliest, latest, len(g), g[-1][1]))
         out[hemisphere] = reversals
     return out
 
@@ -382,6 +267,8 @@ def record_events(record, sunspot_times=None, sunspot_values=None, variable: str
                 continue
             north = _interp(when, t, smooth["north"])
             south = _interp(when, t, smooth["south"])
+            if not np.isfinite(north) and not np.isfinite(south):
+                continue  # the smoothed record does not reach this minimum (its first or last half-year)
             asym = (abs(north) - abs(south)) / (abs(north) + abs(south)) if np.isfinite(north + south) else math.nan
             out["at_minima"].append({"time": float(when), "north": north, "south": south,
                                      "axial_dipole": _interp(when, t, dipole), "asymmetry": asym})

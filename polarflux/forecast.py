@@ -236,9 +236,13 @@ def calibration_from_events(events: dict, proxy: str = "axial_dipole") -> list[d
 
 def read_calibration(path: str | os.PathLike) -> list[dict]:
     """Read calibration pairs from CSV with columns ``cycle, proxy, next_amplitude, source``."""
+    from ._kinds import check_input_file
+
     source = os.fspath(path)
+    expected = "a calibration CSV (columns cycle, proxy, next_amplitude, source)"
+    check_input_file(source, expected, accept=("csv", "text"))
     try:
-        with open(source, newline="", encoding="utf-8") as handle:
+        with open(source, newline="", encoding="utf-8-sig") as handle:
             reader = csv.DictReader(handle)
             fields = [f.strip().lower() for f in reader.fieldnames or []]
             reader.fieldnames = fields
@@ -256,6 +260,10 @@ def read_calibration(path: str | os.PathLike) -> list[dict]:
                     raise PolarfluxError(f"{source}: line {line}: proxy and next_amplitude must be numbers") from None
     except OSError as exc:
         raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise PolarfluxError(f"{source}: not a text file; expected {expected}") from None
+    if not pairs:
+        raise PolarfluxError(f"{source}: holds no calibration pairs; expected {expected}")
     return pairs
 
 

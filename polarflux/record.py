@@ -277,11 +277,13 @@ class LedgerRun:
 
 
 def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "none", field: str = "radial",
-                        jobs: int = 1, dask: str | None = None, on_result=None) -> LedgerRun:
+                        jobs: int = 1, dask: str | None = None, on_result=None,
+                        retry_failed: bool = False) -> LedgerRun:
     """Measure the files the ledger does not know yet, commit each result, and return every input's row.
 
     ``on_result(path, error_or_None, new)`` is called for each file (``new`` False when
-    the ledger already held it).
+    the ledger already held it). ``retry_failed`` measures again the files whose earlier
+    attempt failed (after a repair, or a new version of polarflux).
     """
     from .ledger import file_digest, settings_key
 
@@ -308,7 +310,7 @@ def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "
                 continue
         meta[path] = (digest, stat)
         hit = None if digest is None else ledger.lookup(digest, settings)
-        if hit is None:
+        if hit is None or retry_failed and hit[1] is not None:
             todo.append((path, cap, fill, field, digest is None))
         else:
             known[path] = hit
@@ -492,29 +494,52 @@ def write_record(ds, path: str | os.PathLike, force: bool = False) -> Path:
     return path
 
 
+RECORD_WORDS = "a polar-field record (.nc or .csv written by 'polarflux measure')"
+
+
 def read_record(path: str | os.PathLike):
-    """Read a record written by :func:`write_record` (``.nc`` or ``.csv``) as a Dataset."""
+    """Read a record written by :func:`write_record` (``.nc`` or ``.csv``) as a Dataset.
+
+    Raises
+    ------
+    PolarfluxError
+        One line naming the file and what it is instead (missing, a folder, a map, a
+        transport run, a sunspot series, a binary file, ...) or which column or line is wrong.
+    """
     import xarray as xr
 
+    from ._kinds import check_input_file
+
     path = Path(path)
-    if path.suffix.lower() == ".nc":
-        with xr.open_dataset(path, engine="netcdf4") as ds:
-            return ds.load()
-    if path.suffix.lower() != ".csv":
-        raise SettingsError(f"{path}: a record is a .nc or .csv file")
-    with open(path, newline="", encoding="utf-8") as handle:
-        reader = csv.DictReader(handle)
-        missing = [c for c in CSV_COLUMNS if c not in (reader.fieldnames or ())]
-        if missing:
-            raise PolarfluxError(f"{path}: not a polarflux record; missing columns {', '.join(missing)}")
-        raw = list(reader)
+    kind = check_input_file(path, RECORD_WORDS, accept=("record", "csv"))
+    if path.suffix.lower() == ".nc" or kind == "record" and path.suffix.lower() != ".csv":
+        try:
+            with xr.open_dataset(path, engine="netcdf4") as ds:
+                return ds.load()
+        except (OSError, ValueError, RuntimeError) as exc:
+            raise PolarfluxError(f"{path}: cannot be read as a netCDF record ({exc})") from None
+    try:
+        with open(path, newline="", encoding="utf-8-sig") as handle:
+            reader = csv.DictReader(handle)
+            missing = [c for c in CSV_COLUMNS if c not in (reader.fieldnames or ())]
+            if missing:
+                raise PolarfluxError(f"{path}: not a polarflux record; missing columns {', '.join(missing)}")
+            raw = list(reader)
+    except UnicodeDecodeError:
+        raise PolarfluxError(f"{path}: not a text file; expected {RECORD_WORDS}") from None
     rows = []
-    for r in raw:
+    for line, r in enumerate(raw, start=2):
         row = dict(r)
-        row["carrington_rotation"] = int(r["carrington_rotation"]) if r["carrington_rotation"] else None
-        row["time"] = r["time"] or None
-        for column in CSV_COLUMNS[5:]:
-            row[column] = float(r[column])
+        try:
+            row["carrington_rotation"] = int(r["carrington_rotation"]) if r["carrington_rotation"] else None
+            row["time"] = r["time"] or None
+            if row["time"] is not None:
+                np.datetime64(row["time"], "ns")
+            for column in CSV_COLUMNS[5:]:
+                row[column] = float(r[column])
+        except (ValueError, TypeError):
+            raise PolarfluxError(f"{path}: line {line}: not a valid record row (a number or time cannot be "
+                                 "read)") from None
         rows.append(row)
     cap = float(raw[0]["cap_deg"]) if raw else float("nan")
     return rows_to_dataset(rows, cap_deg=cap, fill="", field="")

@@ -1,7 +1,6 @@
 """The figures of a record, and the one-page report that holds them.
 
-:func:`analyse` runs the record analysis (and, with a sunspot series, the
-forecast) once; :func:`figures` draws every kind from it; :func:`write_report`
+:func:`figures` draws every kind from an analysis (:func:`polarflux.analysis.analyse`); :func:`write_report`
 writes one self-contained HTML page (figures embedded as PNG) with the record
 summary, the cross-calibration, the events, the forecast with its intervals and
 the caution.
@@ -12,7 +11,6 @@ from __future__ import annotations
 import base64
 import html
 import io
-import json
 import os
 from pathlib import Path
 
@@ -21,31 +19,11 @@ import numpy as np
 from ._io import atomic_path
 from ._version import __version__
 from .errors import PolarfluxError
+from .timeseries import format_date
 
-__all__ = ["FIGURE_KINDS", "analyse", "figures", "save_figure", "write_report", "report_html"]
+__all__ = ["FIGURE_KINDS", "figures", "save_figure", "write_report", "report_html"]
 
 FIGURE_KINDS = ("polar", "butterfly", "map", "fan", "calibration")
-
-
-def analyse(record, sunspots=None, bases=("",), members: int = 300, seed: int = 0, as_of=None) -> dict:
-    """Merge, find the events and (with ``sunspots`` = (times, values)) forecast; return it all."""
-    from .calibration import merge_instruments
-    from .events import record_events
-    from .forecast import forecast_from_record
-
-    merged = merge_instruments(record)
-    found = record_events(merged, *(sunspots if sunspots is not None else (None, None)))
-    found["scale_factors"] = json.loads(merged.attrs["scale_factors"])
-    found["band_factors_needed"] = bool(merged.attrs["band_factors_needed"])
-    result = {"record": record, "merged": merged, "events": found, "sunspots": sunspots, "bases": bases,
-              "forecast": None, "forecast_error": None}
-    if sunspots is not None:
-        try:
-            result["forecast"] = forecast_from_record(record, *sunspots, members=members, seed=seed, as_of=as_of,
-                                                      bases=bases)
-        except PolarfluxError as exc:
-            result["forecast_error"] = str(exc)
-    return result
 
 
 def figures(analysis: dict, kinds=FIGURE_KINDS, caption: str = "", truth_amplitude=None) -> dict:
@@ -118,14 +96,6 @@ def _table(header, rows) -> str:
     return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
-def _date(year: float) -> str:
-    from .events import from_decimal_year
-
-    if not np.isfinite(year):
-        return "-"
-    return str(np.datetime_as_string(from_decimal_year(np.array([year]), True)[0], unit="D"))
-
-
 def report_html(analysis: dict, figs: dict, title: str, source: str) -> str:
     """The report page as a string (see :func:`write_report`)."""
     from .forecast import CAUTION
@@ -150,16 +120,16 @@ def report_html(analysis: dict, figs: dict, title: str, source: str) -> str:
     rows = []
     for hemisphere in ("north", "south"):
         for r in events["reversals"][hemisphere]:
-            window = f"{_date(r['earliest'])} to {_date(r['latest'])}" if r["crossings"] > 1 else ""
-            rows.append(["polar reversal", hemisphere, _date(r["time"]), window, "+" if r["new_sign"] > 0 else "−"])
+            window = f"{format_date(r['earliest'])} to {format_date(r['latest'])}" if r["crossings"] > 1 else ""
+            rows.append(["polar reversal", hemisphere, format_date(r["time"]), window, "+" if r["new_sign"] > 0 else "−"])
     for lag in events["reversal_lags"]:
-        rows.append(["reversal lag (S − N)", "", _date(lag["north"]), "", f"{lag['lag_years']:+.2f} yr"])
+        rows.append(["reversal lag (S − N)", "", format_date(lag["north"]), "", f"{lag['lag_years']:+.2f} yr"])
     for m in events["minima"]:
-        rows.append(["cycle minimum", "", _date(m["time"]), "", f"SSN {m['sunspot_number']:.1f}"])
+        rows.append(["cycle minimum", "", format_date(m["time"]), "", f"SSN {m['sunspot_number']:.1f}"])
     for m in events["maxima"]:
-        rows.append(["cycle maximum", "", _date(m["time"]), "", f"SSN {m['sunspot_number']:.1f}"])
+        rows.append(["cycle maximum", "", format_date(m["time"]), "", f"SSN {m['sunspot_number']:.1f}"])
     for a in events["at_minima"]:
-        rows.append(["polar fields at minimum", "N / S / dipole", _date(a["time"]), "",
+        rows.append(["polar fields at minimum", "N / S / dipole", format_date(a["time"]), "",
                      f"{a['north']:+.2f} / {a['south']:+.2f} / {a['axial_dipole']:+.2f} G; "
                      f"asymmetry {a['asymmetry']:+.2f}"])
     events_table = _table(["event", "hemisphere", "date", "window", "value"], rows)
@@ -170,10 +140,10 @@ def report_html(analysis: dict, figs: dict, title: str, source: str) -> str:
             ["quantity", "median", "68 % range", "95 % range"],
             [["next-cycle amplitude (sunspot number)", f"{a['median']:.0f}", f"{a['low68']:.0f}–{a['high68']:.0f}",
               f"{a['low95']:.0f}–{a['high95']:.0f}"],
-             ["time of the next maximum", _date(mx["median"]), f"{_date(mx['low68'])} to {_date(mx['high68'])}",
-              f"{_date(mx['low95'])} to {_date(mx['high95'])}"]],
+             ["time of the next maximum", format_date(mx["median"]), f"{format_date(mx['low68'])} to {format_date(mx['high68'])}",
+              f"{format_date(mx['low95'])} to {format_date(mx['high95'])}"]],
         )
-        forecast += (f"<p>As of {_date(fc['as_of'])}; proxy |{html.escape(fc['proxy'])}| at minimum; "
+        forecast += (f"<p>As of {format_date(fc['as_of'])}; proxy |{html.escape(fc['proxy'])}| at minimum; "
                      f"calibration amplitude = {cal['intercept']:.1f} + {cal['slope']:.1f} × proxy on "
                      f"{len(cal['pairs'])} cycles, leave-one-out rms error {cal['loo_rms']:.1f}; projection: "
                      f"{html.escape(fc['projection']['method'])}.</p>")

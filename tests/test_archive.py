@@ -57,8 +57,14 @@ def test_rerun_skips_known_maps_and_a_new_cap_measures_again(tiny_scenario, tmp_
     assert main([*args, "--out", str(tmp_path / "b.csv")]) == 1
     second = capsys.readouterr().err
     assert "(0 new, 6 from the ledger), 1 failed" in second
-    assert "broken.fits: not a readable" not in second and "failed in earlier runs" in second  # reported once
+    # not tried again, but its reason is shown (not left in the ledger) with the way to try again
+    earlier = second.split("failed in earlier runs")[1]
+    assert "broken.fits: not a readable FITS file" in earlier and "--retry-failed" in second
     assert read_rows(tmp_path / "a.csv") == read_rows(tmp_path / "b.csv")
+    assert main([*args, "--out", str(tmp_path / "r.csv"), "--retry-failed"]) == 1  # tried again: fails again
+    retried = capsys.readouterr().err
+    assert "failed in earlier runs" not in retried and "broken.fits: not a readable FITS file" in retried
+    assert "(0 new, 6 from the ledger), 1 failed" in retried
     assert main([*args, "--out", str(tmp_path / "c.csv"), "--cap", "55"]) == 1
     assert "(6 new, 0 from the ledger)" in capsys.readouterr().err
     with sqlite3.connect(ledger) as db:

@@ -50,7 +50,7 @@ def test_existing_output_is_not_overwritten_without_force(maps, tmp_path, capsys
     out = tmp_path / "keep.csv"
     out.write_text("precious\n")
     assert main(["measure", str(maps), "--out", str(out)]) == 2
-    assert "pass --force" in capsys.readouterr().err
+    assert "add --force to replace it" in capsys.readouterr().err
     assert out.read_text() == "precious\n"
     assert main(["measure", str(maps), "--out", str(out), "--force"]) == 0
     assert out.read_text().startswith("source,instrument")

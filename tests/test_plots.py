@@ -11,9 +11,10 @@ import numpy as np  # noqa: E402
 import pytest  # noqa: E402
 
 import polarflux as pf  # noqa: E402
+from polarflux.analysis import analyse  # noqa: E402
 from polarflux.events import from_decimal_year  # noqa: E402
 from polarflux.plots import SIGNED_COLOURS, signed_colormap  # noqa: E402
-from polarflux.report import FIGURE_KINDS, analyse, figures, report_html, save_figure  # noqa: E402
+from polarflux.report import FIGURE_KINDS, figures, report_html, save_figure  # noqa: E402
 
 
 @pytest.fixture(scope="module")

@@ -6,18 +6,17 @@ from pathlib import Path
 
 import numpy as np
 
-from .cli import (
+from ..errors import PolarfluxError
+from ..tables import cycles_table, events_table, forecast_text
+from ..timeseries import format_date
+from ._common import (
     EXIT_OK,
     EXIT_SOME_FAILED,
-    _check_options,
-    _date,
-    _events_table,
-    _forecast_text,
-    _generate,
-    _run_measurement,
-    _scenario_settings,
+    check_measure_options,
+    generate_scenario,
+    run_measurement,
+    scenario_settings,
 )
-from .errors import PolarfluxError
 
 _DEMO_MARKER = ".polarflux-demo"
 
@@ -32,14 +31,14 @@ def _prepare_demo_folder(folder: Path) -> None:
     (folder / _DEMO_MARKER).write_text("made by polarflux demo; the demo rewrites what is in this folder\n")
 
 
-def run_demo(args, parser) -> int:
+def demo(args, parser) -> int:
     import json
 
-    from .plots import plot_polar_fields
-    from .record import expand_inputs, write_record
+    from ..plots import plot_polar_fields
+    from ..record import expand_inputs, write_record
 
-    _check_options(args, parser)
-    settings = _scenario_settings(args, parser)
+    check_measure_options(args, parser)
+    settings = scenario_settings(args, parser)
     folder = Path(args.out)
     _prepare_demo_folder(folder)
     scenario = folder / "scenario"
@@ -48,11 +47,11 @@ def run_demo(args, parser) -> int:
         truth = json.loads((scenario / "truth.json").read_text())
         print(f"reusing the invented scenario in {scenario} (same settings)")
     else:
-        truth = _generate(scenario, settings, force=True)
+        truth = generate_scenario(scenario, settings, force=True)
         print(f"generated the invented scenario in {scenario}: {len(truth['maps'])} maps, "
               f"{truth['years']:.1f} years, seed {settings.seed} (no real data)")
     files, problems = expand_inputs([scenario / "maps"])
-    ds, rows = _run_measurement(files, problems, args, "measuring")
+    ds, rows = run_measurement(files, problems, args, "measuring")
     csv_path = write_record(ds, folder / "polar_record.csv", force=True)
     nc_path = write_record(ds, folder / "polar_record.nc", force=True)
     series = _truth_series(scenario / "truth_series.csv")
@@ -61,7 +60,7 @@ def run_demo(args, parser) -> int:
                             "thin black lines: noise-free truth")
     figure = folder / "polar_fields.png"
     fig.savefig(figure, dpi=120)
-    print(_cycles_table(truth))
+    print(cycles_table(truth))
     print(f"measured {len(rows)} of {len(files)} maps, {ds.attrs['failed_count']} failed; "
           f"cap poleward of {args.cap:g} deg, fill={args.fill}")
     last = ds.isel(time=-1)
@@ -80,16 +79,17 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
     """Events, forecast and report of the demo record, each beside the scenario's truth."""
     import json
 
-    from ._io import atomic_path
-    from .events import read_sunspots, to_decimal_year
-    from .report import analyse, figures, save_figure, write_report
+    from .._io import atomic_path
+    from ..analysis import analyse
+    from ..events import read_sunspots, to_decimal_year
+    from ..report import figures, save_figure, write_report
 
     start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
     target = truth.get("next_cycle") or truth["cycles"][-1]
     as_of = start + target["start_years"] - 2.0  # forecast from the maps two years before the minimum
     analysis = analyse(ds, read_sunspots(scenario / "sunspots.csv"), as_of=as_of)
     found = analysis["events"]
-    print(_events_table(found))
+    print(events_table(found))
     scales = {i["name"]: i["scale"] for i in truth["instruments"]}
     for f in found["scale_factors"]:
         if f["quantity"] == "polar":
@@ -99,17 +99,17 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
             found_times = [r["time"] - start for r in found["reversals"][h]]
             if c[f"{h}_reversal_years"] is not None and found_times:
                 nearest = min(found_times, key=lambda x: abs(x - c[f"{h}_reversal_years"]))
-                print(f"truth: cycle {c['cycle']} {h} reversal {_date(start + c[f'{h}_reversal_years'])}, "
-                      f"found {_date(start + nearest)}")
+                print(f"truth: cycle {c['cycle']} {h} reversal {format_date(start + c[f'{h}_reversal_years'])}, "
+                      f"found {format_date(start + nearest)}")
     with atomic_path(folder / "polar_events.json", force=True) as tmp:
         tmp.write_text(json.dumps(found, indent=1, default=float), encoding="utf-8")
     result = analysis["forecast"]
     if result is not None:
-        print(_forecast_text(result))
+        print(forecast_text(result))
         print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
-              f"{_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
+              f"{format_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
               f"{target['random_factor']:.3f})")
-        from .forecast import public_result
+        from ..forecast import public_result
 
         public = public_result(result)
         with atomic_path(folder / "forecast.json", force=True) as tmp:
@@ -135,13 +135,3 @@ def _truth_series(path: Path) -> dict:
         "north": np.array([float(r["north_mean_field_g"]) for r in rows]),
         "south": np.array([float(r["south_mean_field_g"]) for r in rows]),
     }
-
-
-def _cycles_table(truth: dict) -> str:
-    head = f"{'cycle':>5} {'start':>7} {'max':>7} {'amplitude':>9} {'dipole at start':>15}  (years from start; truth)"
-    lines = [head]
-    for c in truth["cycles"]:
-        peak = "-" if c["maximum_years"] is None else f"{c['maximum_years']:.2f}"
-        lines.append(f"{c['cycle']:>5} {c['start_years']:>7.2f} {peak:>7} {c['amplitude']:>9.1f} "
-                     f"{c['precursor_dipole_g']:>13.2f} G")
-    return "\n".join(lines)

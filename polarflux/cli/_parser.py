@@ -1,0 +1,192 @@
+"""The ``polarflux`` command line: every sub-command, its options and their help."""
+
+from __future__ import annotations
+
+import argparse
+
+from .._version import __version__
+from ..measure import FILL_METHODS
+
+__all__ = ["build_parser", "command_reference"]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="polarflux",
+        description="Polar magnetic fields from Carrington-rotation synoptic maps: measure an archive, read "
+        "the record, evolve the field with surface flux transport, and forecast the next solar cycle "
+        "(probabilistic; operations follow the official space-weather forecasts).",
+    )
+    parser.add_argument("--version", action="version", version=f"polarflux {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", required=True)
+
+    measure = commands.add_parser(
+        "measure",
+        help="measure the polar caps of every map and write one record",
+        description="Measure polar-cap flux, mean polar field and axial dipole of every synoptic map.",
+    )
+    measure.add_argument("inputs", nargs="+", metavar="INPUT",
+                         help="FITS files, folders (searched recursively) or glob patterns")
+    measure.add_argument("--out", required=True, metavar="FILE",
+                         help="output record: FILE.csv (one row per map) or FILE.nc (netCDF)")
+    _add_measure_options(measure)
+    measure.add_argument("--ledger", metavar="PATH",
+                         help="measurement ledger (SQLite): maps already measured with the same settings are "
+                         "not measured again (default: the user's cache folder; 'none' for no ledger)")
+    measure.add_argument("--retry-failed", action="store_true",
+                         help="measure again the files that failed in earlier runs (after repairing them)")
+    measure.add_argument("--dask", metavar="ADDRESS",
+                         help="measure on a dask.distributed cluster: a scheduler address, or 'local'")
+    measure.add_argument("--force", action="store_true",
+                         help="overwrite an existing output (the monthly update: rebuilt from the ledger)")
+    measure.add_argument("--quiet", action="store_true", help="no progress bar and no summary line")
+
+    transport = commands.add_parser(
+        "transport",
+        help="run a surface flux transport model described by a TOML file",
+        description="Evolve the radial field with the surface flux transport model; the TOML keys "
+        "are listed in README.md.",
+    )
+    transport.add_argument("config", metavar="CONFIG.toml", help="model, run, initial state and regions")
+    transport.add_argument("--out", required=True, metavar="FILE.nc", help="output netCDF file")
+    transport.add_argument("--force", action="store_true", help="overwrite an existing output")
+
+    events = commands.add_parser(
+        "events",
+        help="calibrate a record across instruments and find reversals, minima and polar fields at minima",
+        description="Bring a record onto one instrument's scale, correct the yearly viewing swing, and "
+        "find the polar reversals; with a sunspot series, the cycle minima and maxima and the polar "
+        "fields at each minimum. Prints a table and writes PREFIX.json, PREFIX.csv, PREFIX.png and "
+        "PREFIX_merged.nc.",
+    )
+    events.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    events.add_argument("--sunspots", metavar="FILE.csv",
+                        help="sunspot numbers: columns date (or year) and sunspot_number, monthly or yearly")
+    events.add_argument("--reference", metavar="INSTRUMENT", help="instrument whose scale the record takes "
+                        "(default: the one with most maps)")
+    events.add_argument("--per-band", action="store_true", help="separate north and south cap scale factors")
+    events.add_argument("--viewing", choices=("b0", "annual", "none"), default="b0",
+                        help="yearly viewing correction (default: b0, a regression on the B0 angle)")
+    events.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without its suffix + _events)")
+    events.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
+    forecast = commands.add_parser(
+        "forecast",
+        help="project the polar field to the coming minimum and forecast the next cycle",
+        description="Calibrate the precursor relation on the record's own cycles (or a calibration CSV), "
+        "project the polar field to the coming minimum with a transport ensemble, and forecast the next "
+        "cycle's amplitude and time of maximum with 68 % and 95 % ranges. Writes PREFIX.json, "
+        "PREFIX_fan.png and PREFIX_calibration.png. A forecast is probabilistic.",
+    )
+    forecast.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    forecast.add_argument("--sunspots", required=True, metavar="FILE.csv",
+                          help="sunspot numbers: columns date (or year) and sunspot_number")
+    forecast.add_argument("--calibration", metavar="FILE.csv",
+                          help="calibration pairs: columns cycle, proxy, next_amplitude, source")
+    forecast.add_argument("--proxy", choices=("axial_dipole", "mean_field"), default="axial_dipole",
+                          help="polar proxy at minimum (default: axial_dipole)")
+    forecast.add_argument("--members", type=int, default=300, metavar="N", help="ensemble members (default: 300)")
+    forecast.add_argument("--seed", type=int, default=0, help="random seed of the ensemble (default: 0)")
+    forecast.add_argument("--as-of", metavar="DATE", help="forecast as on this date (YYYY-MM-DD): a hindcast")
+    forecast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without suffix + _forecast)")
+    forecast.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
+    plot = commands.add_parser(
+        "plot",
+        help="draw one figure: polar, butterfly, map, fan or calibration",
+        description="Draw one figure. polar: the merged polar-field record with reversals, minima and "
+        "instrument eras (INPUT: a record); butterfly: longitude-averaged field against time and latitude "
+        "(INPUT: a record whose maps are readable, or a transport run .nc); map: one synoptic map with the "
+        "cap boundaries (INPUT: a FITS map); fan and calibration: the forecast (INPUT: a record, with "
+        "--sunspots).",
+    )
+    plot.add_argument("kind", choices=("polar", "butterfly", "map", "fan", "calibration"))
+    plot.add_argument("input", metavar="INPUT", help="a record (.nc/.csv), a transport run (.nc) or a FITS map")
+    plot.add_argument("--out", required=True, metavar="FILE", help="FILE.png, FILE.pdf or FILE.svg")
+    plot.add_argument("--sunspots", metavar="FILE.csv", help="sunspot numbers (polar: minima; fan, calibration)")
+    plot.add_argument("--cap", type=float, default=60.0, metavar="DEG", help="cap boundary for 'map' (default: 60)")
+    plot.add_argument("--force", action="store_true", help="overwrite an existing output")
+
+    report = commands.add_parser(
+        "report",
+        help="write the one-page report: record, events, forecast, caution and figures",
+        description="Write one self-contained HTML page with the record summary, the cross-calibration, "
+        "the events table, the forecast with its intervals, the caution, and every figure embedded.",
+    )
+    report.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    report.add_argument("--sunspots", metavar="FILE.csv", help="sunspot numbers (minima and the forecast)")
+    report.add_argument("--out", required=True, metavar="FILE.html", help="the report page")
+    report.add_argument("--force", action="store_true", help="overwrite an existing output")
+
+    synth = commands.add_parser(
+        "synth",
+        help="write the invented multi-cycle scenario: synoptic maps plus their truth",
+        description="Generate the invented scenario (no real data): an archive of synoptic maps from two "
+        "invented instruments, with truth.json, truth_series.csv, regions.csv and sunspots.csv beside it.",
+    )
+    synth.add_argument("--out", required=True, metavar="DIR", help="folder for the scenario")
+    _add_scenario_options(synth)
+    synth.add_argument("--force", action="store_true", help="replace a scenario already in DIR")
+
+    demo = commands.add_parser(
+        "demo",
+        help="generate (or reuse) the invented scenario, measure it, read the record, forecast, report",
+        description="Generate the invented scenario (or reuse it), measure every map, read the record, "
+        "forecast the next cycle from two years before its minimum, and write the report and every "
+        "figure, each beside the scenario's truth.",
+    )
+    demo.add_argument("--out", default="polarflux-demo", metavar="DIR",
+                      help="folder for the scenario and results (default: %(default)s)")
+    _add_scenario_options(demo)
+    _add_measure_options(demo)
+    for name, sub in commands.choices.items():
+        sub.set_defaults(command_parser=sub, command_name=name)
+    return parser
+
+
+def _add_scenario_options(parser: argparse.ArgumentParser) -> None:
+    from ..synthetic import RESOLUTIONS
+
+    parser.add_argument("--seed", type=int, default=2051, help="random seed (default: %(default)s)")
+    parser.add_argument("--cycles", type=int, default=4, metavar="K", help="solar cycles (default: 4)")
+    parser.add_argument("--resolution", choices=tuple(RESOLUTIONS), default="standard",
+                        help="model and map grids (default: standard: model 1 degree, maps 2 and 1 degree)")
+    parser.add_argument("--years", type=float, default=None, metavar="Y",
+                        help="stop the scenario after Y years (default: when the last cycle ends)")
+
+
+def _add_measure_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--cap", type=float, default=60.0, metavar="DEG",
+                        help="cap boundary latitude in degrees (default: 60)")
+    parser.add_argument("--fill", choices=FILL_METHODS, default="none",
+                        help="missing polar pixels: 'none' integrates what is observed, "
+                        "'profile' fills them from the observed latitude profile (default: none)")
+    parser.add_argument("--field", choices=("radial", "los"), default="radial",
+                        help="the maps hold radial or line-of-sight field (default: radial)")
+    from ..record import available_cores
+
+    parser.add_argument("--jobs", type=int, default=available_cores(), metavar="N",
+                        help="processes to use (default: the cores available)")
+
+
+def command_reference() -> str:
+    """The command reference in Markdown, made from the parser itself (docs/cli.md is this text)."""
+    import os
+
+    parser = build_parser()
+    columns = os.environ.get("COLUMNS")
+    os.environ["COLUMNS"] = "100"  # argparse wraps to the terminal: fix the width so the text is stable
+    try:
+        sections = ["# Command reference", "",
+                    "Generated from the `polarflux` parser by `python docs/make_cli_reference.py`; "
+                    "a test fails when this page and the parser disagree.", "",
+                    "```text", parser.format_help().rstrip(), "```", ""]
+        for action in parser._subparsers._group_actions:  # noqa: SLF001 - argparse keeps them here
+            for name, sub in action.choices.items():
+                sections += [f"## polarflux {name}", "", "```text", sub.format_help().rstrip(), "```", ""]
+    finally:
+        if columns is None:
+            os.environ.pop("COLUMNS", None)
+        else:
+            os.environ["COLUMNS"] = columns
+    return "\n".join(sections)
