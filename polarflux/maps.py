@@ -320,6 +320,9 @@ def _read_fits_image(source: str, plane: int | None) -> tuple[dict, np.ndarray, 
     except PermissionError:
         raise MapFormatError(f"{source}: cannot open (permission denied)") from None
     except Exception as exc:  # astropy raises OSError, ValueError, TypeError, warnings, ...
+        if "checksum verification failed" in str(exc).lower() or "datasum verification failed" in str(exc).lower():
+            raise MapFormatError(f"{source}: damaged: its CHECKSUM/DATASUM do not match the contents "
+                                 f"({_first_line(exc)})") from None
         raise MapFormatError(f"{source}: not a readable FITS file ({_first_line(exc)})") from None
 
 
@@ -330,7 +333,9 @@ def _first_image(source: str, plane: int | None, memmap: bool):
     with warnings.catch_warnings():
         # Truncation and header damage arrive as astropy warnings; treat them as errors.
         warnings.simplefilter("error", AstropyUserWarning)
-        with fits.open(source, memmap=memmap, lazy_load_hdus=True) as hdul:
+        # checksum=True: CHECKSUM / DATASUM, where present, are verified (a damaged tile that
+        # still decodes would otherwise be measured as good); files without them cost nothing more
+        with fits.open(source, memmap=memmap, lazy_load_hdus=True, checksum=True) as hdul:
             for hdu in hdul:
                 if not getattr(hdu, "is_image", False) or int(hdu.header.get("NAXIS", 0)) < 2:
                     continue

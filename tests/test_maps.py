@@ -386,3 +386,28 @@ def test_maps_kept_alive_hold_no_file_handles(tmp_path):
     kept = [pf.read_map(path) for _ in range(200)]
     assert len(os.listdir(fd_dir)) <= before + 1
     assert kept[0].values.flags.owndata  # a copy, not a view into a file buffer
+
+
+@pytest.mark.parametrize("compress", [False, True])
+def test_checksums_are_verified_when_present(tmp_path, compress):
+    """FITS standard 4.0, appendix J (CHECKSUM/DATASUM): a file whose bytes changed after writing is refused."""
+    from astropy.io import fits
+
+    from conftest import cea_header
+
+    data = np.full((36, 72), 3.0, dtype=np.float32)
+    hdr = fits.Header(cea_header(36, 72))
+    hdu = fits.CompImageHDU(data=data, header=hdr) if compress else fits.PrimaryHDU(data=data, header=hdr)
+    hdul = fits.HDUList([fits.PrimaryHDU(), hdu] if compress else [hdu])
+    good = tmp_path / "good.fits"
+    hdul.writeto(good, checksum=True)
+    assert b"CHECKSUM=" in good.read_bytes() and b"DATASUM =" in good.read_bytes()
+    assert np.allclose(pf.read_map(good).br, 3.0)
+    raw = bytearray(good.read_bytes())
+    last_header = raw.rfind(b"END" + b" " * 77)
+    data_start = (last_header // 2880 + 1) * 2880
+    raw[data_start + 40] ^= 0x01  # one bit of the data: still a number
+    bad = tmp_path / "bad.fits"
+    bad.write_bytes(bytes(raw))
+    with pytest.raises(pf.MapFormatError, match=r"bad.fits: .*(CHECKSUM/DATASUM|not a readable)"):
+        pf.read_map(bad)
