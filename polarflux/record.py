@@ -412,7 +412,7 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
     def sort_key(row: dict):
         return (row["time"] is None, row["time"] or "", row["source"])
 
-    rows = sorted(rows, key=sort_key)
+    rows, duplicates = _drop_duplicates(sorted(rows, key=sort_key))
     times = np.array(
         [np.datetime64(r["time"], "ns") if r["time"] else np.datetime64("NaT", "ns") for r in rows],
         dtype="datetime64[ns]",
@@ -446,6 +446,8 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         "field": field,
         "failed_count": len(failures),
         "failures": "\n".join(str(f) for f in failures),
+        "duplicate_count": len(duplicates),
+        "duplicates": "\n".join(duplicates),
         "created_by": f"polarflux {__version__}",
     }
     ds = xr.Dataset(
@@ -457,6 +459,21 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         attrs=attrs,
     )
     return ds
+
+
+def _drop_duplicates(rows: list[dict]) -> tuple[list[dict], list[str]]:
+    """Keep one row per map: files with the same instrument, rotation, time and every measured value
+    are one map (a copy, or the same map compressed), kept once and named as duplicates."""
+    kept: dict[tuple, dict] = {}
+    notes = []
+    for row in rows:
+        key = (row["instrument"], row["carrington_rotation"], row["time"],
+               *(repr(float(row[c])) for c in CSV_COLUMNS[5:]))
+        if key in kept:
+            notes.append(f"{row['source']}: the same map as {kept[key]['source']}; measured once")
+        else:
+            kept[key] = row
+    return list(kept.values()), notes
 
 
 def _dataset_rows(ds) -> Iterator[dict]:

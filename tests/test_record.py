@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -99,3 +100,28 @@ def test_measure_file_row_has_every_column(archive):
     _, paths = archive
     row = measure_file(str(paths[0]))
     assert set(row) == set(CSV_COLUMNS)
+
+
+def test_the_same_map_twice_is_measured_once_and_named(tmp_path, capsys):
+    """A copy and a gzip of a map are one map: one row, and both extra files named as duplicates."""
+    import gzip
+    import shutil
+
+    from polarflux.cli import main
+
+    sample = sorted((Path(__file__).resolve().parents[1] / "synthetic_maps" / "maps").rglob("*.fits"))
+    folder = tmp_path / "maps"
+    folder.mkdir()
+    for path in sample:
+        shutil.copy(path, folder / path.name)
+    shutil.copy(sample[0], folder / "copy_of_first.fits")
+    with open(sample[1], "rb") as src, gzip.open(folder / (sample[1].name + ".gz"), "wb") as dst:
+        dst.write(src.read())
+    out = tmp_path / "rec.csv"
+    assert main(["measure", str(folder), "--out", str(out), "--ledger", "none", "--jobs", "1"]) == 0
+    err = capsys.readouterr().err
+    rows = out.read_text().strip().splitlines()[1:]
+    assert len(rows) == len(sample)
+    assert "the same map as" in err and "2 duplicate file(s)" in err
+    record = pf.read_record(out)
+    assert record.sizes["time"] == len(sample)

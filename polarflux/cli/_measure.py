@@ -34,6 +34,7 @@ def measure(args, parser) -> int:
         write_record(ds, out, force=args.force)
         failed = ds.attrs["failed_count"]
         if not args.quiet:
+            _print_duplicates(ds)
             print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; record written to {out}",
                   file=sys.stderr)
         return EXIT_OK if failed == 0 else EXIT_SOME_FAILED
@@ -62,6 +63,7 @@ def measure(args, parser) -> int:
     ds = rows_to_dataset(run.rows, cap_deg=args.cap, fill=args.fill, field=args.field, failures=failures)
     write_record(ds, out, force=args.force)
     if not args.quiet:
+        _print_duplicates(ds)
         if known_failures:
             shown = known_failures[:10]
             more = len(known_failures) - len(shown)
@@ -81,3 +83,11 @@ def _nothing_measured(count: int) -> int:
     print(f"polarflux measure: error: none of the {count} input file(s) could be measured (see above); "
           "no record written", file=sys.stderr)
     return EXIT_USAGE
+
+
+def _print_duplicates(ds) -> None:
+    notes = [n for n in str(ds.attrs.get("duplicates", "")).splitlines() if n]
+    for note in notes:
+        print(f"polarflux measure: {note}", file=sys.stderr)
+    if notes:
+        print(f"{len(notes)} duplicate file(s): each map is in the record once", file=sys.stderr)
