@@ -257,6 +257,13 @@ def parse_header_time(value: Any) -> Time | None:
         return None
 
 
+#: Keywords a map's time is read from, in order (FITS standard 4.0 section 9 for DATE-*, MJD-*;
+#: T_OBS / T_REC and DATE_OBS as map products write them). ``DATE`` is the file's creation date
+#: (FITS standard), not the map's, and is never used. Without any of them the time is the middle
+#: of the map's Carrington rotation.
+TIME_KEYS = ("DATE-OBS", "DATE_OBS", "DATE-AVG", "DATE-BEG", "MJD-AVG", "MJD-OBS", "T_OBS", "T_REC")
+
+
 def _map_time(header: Mapping, source: str) -> Time | None:
     date_obs = str(header.get("DATE-OBS", "") or "").strip()
     if date_obs:
@@ -266,8 +273,16 @@ def _map_time(header: Mapping, source: str) -> Time | None:
         parsed = parse_header_time(date_obs)
         if parsed is not None:
             return parsed
-    for key in ("T_OBS", "DATE"):
-        parsed = parse_header_time(header.get(key))
+    begin, end = parse_header_time(header.get("DATE-BEG")), parse_header_time(header.get("DATE-END"))
+    for key in TIME_KEYS[1:]:
+        if key == "DATE-BEG" and begin is not None and end is not None:
+            return begin + 0.5 * (end - begin)
+        value = header.get(key)
+        if key.startswith("MJD-"):
+            if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value):
+                return Time(float(value), format="mjd", scale="utc")
+            continue
+        parsed = parse_header_time(value)
         if parsed is not None:
             return parsed
     return None

@@ -20,7 +20,7 @@ import numpy as np
 
 from ._io import atomic_path
 from ._version import __version__
-from .errors import PolarfluxError, SettingsError
+from .errors import MapFormatError, PolarfluxError, SettingsError
 from .geometry import HEMISPHERES, as_degrees
 from .maps import quiet_time_warnings, read_map
 from .measure import FILL_METHODS, axial_dipole, measure_caps
@@ -128,6 +128,11 @@ def expand_inputs(inputs: Iterable[str | os.PathLike]) -> tuple[list[str], list[
 def measure_file(path: str, cap_latitude: float = 60.0, fill: str = "none", field: str = "radial") -> dict:
     """Read and measure one map; return one record row (the CSV columns)."""
     m = read_map(path, field=field)
+    if m.time is None:
+        from ._header import TIME_KEYS
+
+        raise MapFormatError(f"{path}: the map has no time: none of {', '.join(TIME_KEYS)} nor a Carrington "
+                             "rotation number (CAR_ROT) in its header; a record needs each map's time")
     caps = measure_caps(m, cap_latitude=cap_latitude, fill=fill)
     with quiet_time_warnings():
         time = None if m.time is None else m.time.utc.isot

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import datetime
 import os
 import warnings
 
@@ -392,7 +393,6 @@ def test_maps_kept_alive_hold_no_file_handles(tmp_path):
 def test_checksums_are_verified_when_present(tmp_path, compress):
     """FITS standard 4.0, appendix J (CHECKSUM/DATASUM): a file whose bytes changed after writing is refused."""
     from astropy.io import fits
-
     from conftest import cea_header
 
     data = np.full((36, 72), 3.0, dtype=np.float32)
@@ -411,3 +411,33 @@ def test_checksums_are_verified_when_present(tmp_path, compress):
     bad.write_bytes(bytes(raw))
     with pytest.raises(pf.MapFormatError, match=r"bad.fits: .*(CHECKSUM/DATASUM|not a readable)"):
         pf.read_map(bad)
+
+
+@pytest.mark.parametrize("keys,expected", [
+    ({"DATE-AVG": "2040-05-14T12:00:00"}, "2040-05-14T12:00"),                          # FITS 4.0 sec. 9.4
+    ({"DATE-BEG": "2040-05-01T00:00:00", "DATE-END": "2040-05-28T00:00:00"}, "2040-05-14T12:00"),
+    # MJD 0 is 1858-11-17 00:00 (MJD = JD - 2400000.5, IAU definition), counted here with datetime
+    ({"MJD-OBS": (datetime.date(2040, 5, 14) - datetime.date(1858, 11, 17)).days + 0.5}, "2040-05-14T12:00"),
+    ({"T_REC": "2040.05.14_12:00:00_TAI"}, "2040-05-14T11:59"),
+])
+def test_map_time_from_the_standard_time_keywords(tmp_path, keys, expected):
+    from conftest import cea_header, write_fits
+
+    header = cea_header(36, 72, **keys)
+    del header["DATE-OBS"], header["CAR_ROT"]
+    m = pf.read_map(write_fits(tmp_path / "t.fits", np.zeros((36, 72), np.float32), header))
+    assert m.time.utc.isot.startswith(expected)
+
+
+def test_a_map_without_time_is_refused_by_the_archive_with_the_keywords_it_lacked(tmp_path):
+    """DATE is the file's creation date (FITS standard 4.0, sec. 4.4.2.1), never the map's time."""
+    from conftest import cea_header, write_fits
+
+    from polarflux.record import measure_file
+
+    header = cea_header(36, 72, DATE="2041-01-01T00:00:00")
+    del header["DATE-OBS"], header["CAR_ROT"]
+    path = write_fits(tmp_path / "timeless.fits", np.zeros((36, 72), np.float32), header)
+    assert pf.read_map(path).time is None  # a library user may still read it
+    with pytest.raises(pf.MapFormatError, match=r"timeless.fits: the map has no time: none of DATE-OBS.*CAR_ROT"):
+        measure_file(path)
