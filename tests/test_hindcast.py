@@ -340,7 +340,7 @@ def test_summaries_by_lead_with_clopper_pearson_intervals():
 
 def test_write_hindcast_tables_and_figures(world, tmp_path):
     record, t, v = world
-    dates = [2040.0, 2041.0, 2045.0, 2049.0, 2050.0]
+    dates = [2040.0, 2045.0, 2050.0]
     result = hindcast(record, (t, v), dates, members=40)
     written = write_hindcast(result, tmp_path / "run")
     names = {p.name for p in written}
@@ -395,9 +395,9 @@ def test_figures_draw_what_the_table_holds(world):
 def test_pool_and_dask_give_the_serial_table(world):
     pytest.importorskip("dask.distributed")
     record, t, v = world
-    dates = [2040.0, 2041.5, 2043.0, 2046.0, 2049.5]
+    dates = [2040.0, 2043.0, 2046.0, 2049.5]
     calls = []
     serial = hindcast(record, (t, v), dates, members=30, seed=8, progress=lambda d, n: calls.append((d, n)))
-    assert calls[-1] == (5, 5) and len(calls) == 5
+    assert calls[-1] == (4, 4) and len(calls) == 4
     _same(serial, hindcast(record, (t, v), dates, members=30, seed=8, jobs=2))
     _same(serial, hindcast(record, (t, v), dates, members=30, seed=8, jobs=2, dask="local"))
