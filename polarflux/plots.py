@@ -13,7 +13,11 @@ __all__ = [
     "plot_map",
     "butterfly_profiles",
     "instrument_eras",
+    "cap_field_label",
     "signed_colormap",
+    "colorbar_extend",
+    "NO_DATA_COLOUR",
+    "UNCORRECTED",
     "HEMISPHERE_STYLE",
     "SIGNED_COLOURS",
 ]
@@ -37,8 +41,25 @@ def _new_axes(ax, size=(11, 4.8)):
     return fig, fig.add_subplot()
 
 
-def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
+def cap_field_label(ds) -> str:
+    """The y-label of a polar-field figure, naming the cap latitude the record was measured with."""
+    try:
+        cap = float(ds.attrs.get("cap_deg", np.nan))
+    except (TypeError, ValueError):
+        cap = np.nan
+    where = f"poleward of ±{cap:g}°" if np.isfinite(cap) else "of the polar caps"
+    return f"mean radial field {where} (G)"
+
+
+def _instrument_names(ds) -> list[str]:
+    return list(dict.fromkeys(str(x) for x in ds["instrument"].values)) if "instrument" in ds else []
+
+
+def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None, title: str | None = None):
     """Mean polar-cap field of both hemispheres against time, per instrument, with the axial dipole.
+
+    The record is drawn as measured: with more than one instrument each stays on
+    its own scale, which the title and the legend say.
 
     Parameters
     ----------
@@ -51,16 +72,19 @@ def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
     truth : mapping, optional
         ``{"time": datetime64 array, "north": ..., "south": ...}``: a reference
         (for example the noise-free truth of a synthetic scenario) drawn as thin lines.
+    title : str, optional
+        Replaces the default title.
     """
     fig, ax = _new_axes(ax)
     times = ds["time"].values
-    cap = float(ds.attrs.get("cap_deg", np.nan))
-    instruments = list(dict.fromkeys(str(x) for x in ds["instrument"].values)) or [""]
+    names = np.array([str(x) for x in ds["instrument"].values]) if "instrument" in ds else None
+    instruments = _instrument_names(ds) or [""]
+    several = len(instruments) > 1
     for hemisphere, style in HEMISPHERE_STYLE.items():
         values = ds["mean_field"].sel(hemisphere=hemisphere).values
         for k, name in enumerate(instruments):
-            pick = np.array([str(x) == name for x in ds["instrument"].values]) if name else slice(None)
-            label = f"{hemisphere} cap (poleward of {cap:g}°)" + (f", {name}" if len(instruments) > 1 else "")
+            pick = names == name if name else slice(None)
+            label = f"{hemisphere} cap" + (f", {name}" if several else "")
             ax.plot(times[pick], values[pick], marker=_INSTRUMENT_MARKERS[k % len(_INSTRUMENT_MARKERS)],
                     markersize=2.5, linewidth=0.8, label=label, **style)
         if truth is not None:
@@ -69,16 +93,26 @@ def plot_polar_fields(ds, ax=None, caption: str | None = None, truth=None):
     ax.plot(times, ds["axial_dipole"].values, color="0.35", linestyle=":", linewidth=1.0, label="axial dipole")
     if truth is not None:
         ax.plot([], [], color="black", linewidth=0.6, label="truth (noise-free)")
-    return _finish(fig, ax, "mean radial field (G)", "Polar-cap mean field", caption)
+    default = ("Polar-cap mean field, uncorrected: each instrument on its own scale" if several
+               else "Polar-cap mean field")
+    _finish(fig, ax, cap_field_label(ds), title or default, caption,
+            legend_title=UNCORRECTED if several else None)
+    return fig
 
 
-def _finish(fig, ax, ylabel: str, title: str, caption: str | None):
+#: The legend title of a record drawn with each instrument on its own scale.
+UNCORRECTED = "uncorrected:\neach instrument\non its own scale"
+
+
+def _finish(fig, ax, ylabel: str, title: str, caption: str | None, legend_title: str | None = None):
     """Zero line, time axis label, legend outside on the right, caption: the look of the field plots."""
     ax.axhline(0.0, color="0.6", linewidth=0.8)
     ax.set_xlabel("time (UTC)")
     ax.set_ylabel(ylabel)
     ax.set_title(title)
-    ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
+    legend = ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0,
+                       title=legend_title, title_fontsize="x-small")
+    legend.get_title().set_multialignment("left")
     if caption:
         _add_caption(fig, caption)
     return fig
@@ -106,7 +140,9 @@ def plot_record_events(record, events: dict | None = None, ax=None, caption: str
         ``{instrument: (first time, last time)}`` (datetime64): each instrument's era is
         shaded (alternating grey tones and hatches), the overlaps darker.
     """
-    from .events import RECORD_MIN_COUNT, from_decimal_year, running_mean
+    import json
+
+    from .timeseries import RECORD_MIN_COUNT, from_decimal_year, running_mean
 
     fig, ax = _new_axes(ax)
     times = record["time"].values
@@ -134,8 +170,10 @@ def plot_record_events(record, events: dict | None = None, ax=None, caption: str
         for k, m in enumerate(events["minima"]):
             when = from_decimal_year(np.array([m["time"]]), as_dt)[0]
             ax.axvline(when, color="0.4", linestyle=":", linewidth=1.2, label="cycle minimum" if k == 0 else None)
-    return _finish(fig, ax, "mean radial field poleward of the cap (G)", "Polar-field record: reversals and minima",
-                   caption)
+    factors = json.loads(record.attrs.get("scale_factors", "[]") or "[]")
+    scale = f"merged onto {record.attrs['reference_instrument']}'s scale" if factors else None
+    return _finish(fig, ax, cap_field_label(record), "Polar-field record: reversals and minima", caption,
+                   legend_title=scale)
 
 
 def _cycle_curves(amplitudes, minima, times):
@@ -197,9 +235,13 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
     x = fit.proxy
     span = np.linspace(0.0, max(float(np.max(x)), result["projection"]["proxy_at_minimum"]["high95"]) * 1.15, 100)
     p = fit.predict(span)
-    ax.fill_between(span, p.low95, p.high95, color="#1f5fa6", alpha=0.15, label="95 % prediction band")
-    ax.fill_between(span, p.low68, p.high68, color="#1f5fa6", alpha=0.3, label="68 % prediction band")
-    ax.plot(span, p.median, color="#1f5fa6", label=f"fit: {fit.intercept:.1f} + {fit.slope:.1f} x proxy")
+    # amplitudes are non-negative: the bands (and the line) stop at zero instead of running below it
+    low95, low68, high68, high95 = (np.maximum(np.asarray(v, dtype=np.float64), 0.0)
+                                    for v in (p.low95, p.low68, p.high68, p.high95))
+    median = np.where(np.asarray(p.median) >= 0.0, p.median, np.nan)
+    ax.fill_between(span, low95, high95, color="#1f5fa6", alpha=0.15, label="95 % prediction band")
+    ax.fill_between(span, low68, high68, color="#1f5fa6", alpha=0.3, label="68 % prediction band")
+    ax.plot(span, median, color="#1f5fa6", label=f"fit: {fit.intercept:.1f} + {fit.slope:.1f} x proxy")
     ax.plot(x, fit.amplitude, "ks", markersize=5, label="calibration cycles")
     for xi, yi, label in zip(x, fit.amplitude, fit.labels or [""] * x.size, strict=True):
         ax.annotate(str(label), (xi, yi), textcoords="offset points", xytext=(4, 4), fontsize="x-small")
@@ -212,6 +254,7 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
     ax.set_xlabel(f"|{result['proxy'].replace('_', ' ')}| at minimum ({unit})")
     ax.set_ylabel("amplitude of the next cycle (sunspot number)")
     ax.set_title("Precursor calibration")
+    ax.set_ylim(bottom=0.0)
     ax.legend(loc="upper left", fontsize="x-small")
     if caption:
         _add_caption(fig, caption)
@@ -227,20 +270,67 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
 SIGNED_COLOURS = ("#0b2a59", "#3d6fb0", "#9cc0e6", "#f4f4f4", "#f6c48e", "#e58a33", "#b4520e")
 
 
+#: Where a signed-field image has no data (hidden pole, missing pixels): a neutral mid grey,
+#: darker than the near-white of zero field, so a gap never reads as "no field".
+NO_DATA_COLOUR = "#8c8c8c"
+
+
 def signed_colormap():
-    """The signed-field colour map (see :data:`SIGNED_COLOURS`)."""
+    """The signed-field colour map (see :data:`SIGNED_COLOURS`); missing data draws as :data:`NO_DATA_COLOUR`."""
     from matplotlib.colors import LinearSegmentedColormap
 
-    return LinearSegmentedColormap.from_list("polarflux_signed", SIGNED_COLOURS, N=256)
+    return LinearSegmentedColormap.from_list("polarflux_signed", SIGNED_COLOURS, N=256).with_extremes(
+        bad=NO_DATA_COLOUR)
 
 
 def _symmetric_limit(values, quantile: float = 98.0) -> float:
     finite = np.abs(np.asarray(values)[np.isfinite(values)])
-    return float(np.percentile(finite, quantile)) if finite.size else 1.0
+    limit = float(np.percentile(finite, quantile)) if finite.size else 0.0
+    return limit if limit > 0 else 1.0
+
+
+def colorbar_extend(values, vmin: float, vmax: float) -> str:
+    """The colour bar's ``extend`` for these limits: an arrow at each end the limits clip."""
+    finite = np.asarray(values, dtype=np.float64)
+    finite = finite[np.isfinite(finite)]
+    below = bool(finite.size) and float(finite.min()) < vmin
+    above = bool(finite.size) and float(finite.max()) > vmax
+    return {(True, True): "both", (True, False): "min", (False, True): "max"}.get((below, above), "neither")
+
+
+def _signed_image(fig, ax, x_edges, y_edges, values, label: str):
+    """A signed-field mesh: symmetric limits, grey where there is no data, a colour bar with clip arrows."""
+    from matplotlib.patches import Patch
+
+    values = np.asarray(values, dtype=np.float64)
+    limit = _symmetric_limit(values)
+    mesh = ax.pcolormesh(x_edges, y_edges, np.ma.masked_invalid(values), cmap=signed_colormap(),
+                         vmin=-limit, vmax=limit, shading="flat")
+    colorbar = fig.colorbar(mesh, ax=ax, pad=0.01, extend=colorbar_extend(values, -limit, limit))
+    colorbar.set_label(label)
+    ticks = np.array([-90, -60, -30, 0, 30, 60, 90])
+    ax.set_yticks(np.sin(np.deg2rad(ticks)))
+    ax.set_yticklabels([f"{v:d}°" for v in ticks])
+    ax.set_ylim(-1.0, 1.0)
+    ax.set_ylabel("latitude (sine-latitude scale)")
+    handles = [Patch(facecolor=NO_DATA_COLOUR, edgecolor="0.3", linewidth=0.5, label="no data")] \
+        if not np.all(np.isfinite(values)) else []
+    return mesh, handles
+
+
+def _legend_above(ax, handles) -> None:
+    """A legend above the axes at the right, beside a left-aligned title: it hides no data."""
+    if handles:
+        ax.legend(handles=handles, loc="lower right", bbox_to_anchor=(1.0, 1.005), borderaxespad=0.0,
+                  fontsize="x-small", ncols=len(handles), frameon=False)
 
 
 def butterfly_profiles(record, nrows: int = 90, bases=("",)):
     """Longitude-averaged radial field per map of a record, on ``nrows`` equal sine-latitude rows.
+
+    A row of the output is NaN where the map has data in less than half of it (a
+    hidden pole); otherwise it is the mean of the map's finite pixels there, so a
+    row half-seen is not pulled towards zero. Each map stays on its own scale.
 
     Returns (times, sine-latitude edges, profiles[time, row]); maps that cannot be read are skipped.
     """
@@ -263,20 +353,23 @@ def butterfly_profiles(record, nrows: int = 90, bases=("",)):
         except PolarfluxError:
             continue
         finite = np.isfinite(m.values)
-        counts = finite.sum(axis=1)
-        sums = np.where(finite, m.values, 0.0).sum(axis=1, dtype=np.float64)
-        mean = np.divide(sums, counts, out=np.full(counts.shape, np.nan), where=counts > 0)
-        seen = np.isfinite(mean)
-        profile = regrid_conservative(np.where(seen, mean, 0.0)[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])
-        cover = regrid_conservative(seen.astype(float)[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])
+        # area-weighted: sums of field and of seen fraction per map row, regridded conserving both
+        seen = finite.mean(axis=1)
+        mean_of_row = np.where(finite, m.values, 0.0).sum(axis=1, dtype=np.float64) / finite.shape[1]
+        field = regrid_conservative(mean_of_row[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])[:, 0]
+        cover = regrid_conservative(seen[:, None], m.lat_edges, [0, 360], lat_edges, [0, 360])[:, 0]
         with np.errstate(invalid="ignore", divide="ignore"):
-            rows.append(np.where(cover[:, 0] > 0.5, profile[:, 0] / cover[:, 0], np.nan))
+            rows.append(np.where(cover > 0.5, field / cover, np.nan))
         times.append(record["time"].values[i])
     return np.array(times, dtype="datetime64[ns]"), s_edges, np.array(rows)
 
 
 def plot_butterfly(times, sine_edges, profiles, ax=None, caption: str | None = None, title: str | None = None):
     """Magnetic butterfly diagram: longitude-averaged radial field against time and sine latitude.
+
+    Missing data (a hidden pole, a gap between maps) is drawn in :data:`NO_DATA_COLOUR`
+    and named in a legend above the axes; the colour bar has an arrow at each end its
+    symmetric limits clip.
 
     Parameters
     ----------
@@ -290,57 +383,73 @@ def plot_butterfly(times, sine_edges, profiles, ax=None, caption: str | None = N
 
     fig, ax = _new_axes(ax, size=(11, 4.8))
     profiles = np.asarray(profiles, dtype=np.float64)
-    limit = _symmetric_limit(profiles)
     t = np.asarray(times)
     if np.issubdtype(t.dtype, np.datetime64):
         x = mdates.date2num(t.astype("datetime64[ms]").astype(object))
-        step = np.median(np.diff(x)) if x.size > 1 else 27.0
-        x_edges = np.concatenate([x - step / 2, [x[-1] + step / 2]])
         ax.xaxis_date()
         xlabel = "time (UTC)"
     else:
-        step = np.median(np.diff(t)) if t.size > 1 else 0.07
-        x_edges = np.concatenate([t - step / 2, [t[-1] + step / 2]])
+        x = t.astype(np.float64)
         xlabel = "time (years)"
-    mesh = ax.pcolormesh(x_edges, sine_edges, profiles.T, cmap=signed_colormap(), vmin=-limit, vmax=limit,
-                         shading="flat")
-    colorbar = fig.colorbar(mesh, ax=ax, pad=0.01)
-    colorbar.set_label("longitude-averaged radial field (G)")
-    ticks = np.array([-90, -60, -30, 0, 30, 60, 90])
-    ax.set_yticks(np.sin(np.deg2rad(ticks)))
-    ax.set_yticklabels([f"{v:d}°" for v in ticks])
-    ax.set_ylabel("latitude (sine-latitude scale)")
+    x_edges, columns = _columns_with_gaps(x, profiles)
+    _, handles = _signed_image(fig, ax, x_edges, sine_edges, columns.T, "longitude-averaged radial field (G)")
     ax.set_xlabel(xlabel)
-    ax.set_title(title or "Magnetic butterfly diagram")
+    ax.set_title(title or "Magnetic butterfly diagram", loc="left")
+    _legend_above(ax, handles)
     if caption:
         _add_caption(fig, caption)
     return fig
 
 
+def _columns_with_gaps(x: np.ndarray, profiles: np.ndarray):
+    """Column edges of one cadence step around each time, and the profiles with NaN columns in the gaps.
+
+    Neighbours closer than 1.2 steps share an edge half-way between them; a longer
+    gap (a missing rotation) gets a column of NaN, so it draws as no data instead
+    of being covered by stretched neighbours.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    order = np.argsort(x, kind="stable")
+    x, profiles = x[order], profiles[order]
+    steps = np.diff(x)
+    steps = steps[steps > 0]
+    half = 0.6 * (float(np.median(steps)) if steps.size else 1.0)
+    mid = 0.5 * (x[1:] + x[:-1])
+    left = np.concatenate([[x[0] - half], np.maximum(x[1:] - half, mid)])
+    right = np.concatenate([np.minimum(x[:-1] + half, mid), [x[-1] + half]])
+    gap = np.append(left[1:] > right[:-1], False)  # a no-data column after column i
+    edges = [left[0]]
+    columns = []
+    for i in range(x.size):
+        edges.append(right[i])
+        columns.append(profiles[i])
+        if gap[i]:
+            edges.append(left[i + 1])
+            columns.append(np.full(profiles.shape[1], np.nan))
+    return np.array(edges), np.array(columns)
+
+
 def plot_map(m, ax=None, cap_latitude: float = 60.0, caption: str | None = None):
-    """Quick look at one synoptic map on a sine-latitude axis, with the polar-cap boundaries drawn."""
-    fig, ax = _new_axes(ax, size=(10, 4.6))
-    values = m.values
-    limit = _symmetric_limit(values)
-    mesh = ax.pcolormesh(m.lon_edges, np.sin(np.deg2rad(m.lat_edges)), values, cmap=signed_colormap(),
-                         vmin=-limit, vmax=limit, shading="flat")
-    colorbar = fig.colorbar(mesh, ax=ax, pad=0.01)
-    colorbar.set_label("radial field (G)")
-    for sign in (1, -1):
-        ax.axhline(sign * np.sin(np.deg2rad(cap_latitude)), color="black", linestyle="--", linewidth=1.0,
-                   label=f"polar-cap boundary (±{cap_latitude:g}°)" if sign > 0 else None)
-    ticks = np.array([-90, -60, -30, 0, 30, 60, 90])
-    ax.set_yticks(np.sin(np.deg2rad(ticks)))
-    ax.set_yticklabels([f"{v:d}°" for v in ticks])
-    ax.set_ylabel("latitude (sine-latitude scale)")
-    ax.set_xlabel("Carrington longitude (deg)")
+    """Quick look at one synoptic map on a sine-latitude axis, with the polar-cap boundaries drawn.
+
+    The legend (cap boundaries, no data) sits above the axes, so it hides no part of the map.
+    """
+    from matplotlib.lines import Line2D
+
     from .maps import quiet_time_warnings
 
+    fig, ax = _new_axes(ax, size=(10, 4.6))
+    _, handles = _signed_image(fig, ax, m.lon_edges, np.sin(np.deg2rad(m.lat_edges)), m.values, "radial field (G)")
+    boundary = dict(color="black", linestyle="--", linewidth=1.0)
+    for sign in (1, -1):
+        ax.axhline(sign * np.sin(np.deg2rad(cap_latitude)), **boundary)
+    handles.insert(0, Line2D([], [], label=f"polar-cap boundary (±{cap_latitude:g}°)", **boundary))
+    ax.set_xlabel("Carrington longitude (deg)")
     with quiet_time_warnings():
         when = "" if m.time is None else f", {m.time.utc.isot[:10]}"
     rotation = "" if m.carrington_rotation is None else f"CR {m.carrington_rotation}"
-    ax.set_title(f"Synoptic map {rotation}{when} {m.instrument}".strip())
-    ax.legend(loc="upper right", fontsize="x-small")
+    ax.set_title(f"Synoptic map {rotation}{when} {m.instrument}".strip(), loc="left")
+    _legend_above(ax, handles)
     _add_caption(fig, caption or f"source: {m.source}")
     return fig
 
