@@ -145,3 +145,159 @@ def test_command_reference_is_generated_from_the_parser():
 
     page = Path(__file__).resolve().parents[1] / "docs" / "cli.md"
     assert page.read_text() == command_reference(), "run python docs/make_cli_reference.py"
+
+
+# --------------------------------------------------------------------------- what each figure says (issue 12)
+# Small records and maps built here, so these checks need no scenario.
+
+def _record(instruments, cap=70.0, n=24):
+    """A hand-made record: north +3 G, south -2 G, dipole 1 G, one map per 27.2753 days."""
+    import xarray as xr
+
+    times = np.datetime64("2040-01-01T00:00", "ns") + (np.arange(n) * 27.2753 * 86400e9).astype("timedelta64[ns]")
+    mean = np.column_stack([np.full(n, 3.0) + np.arange(n) * 0.01, np.full(n, -2.0)])
+    return xr.Dataset(
+        {"mean_field": (("time", "hemisphere"), mean), "signed_flux": (("time", "hemisphere"), mean * 1e21),
+         "axial_dipole": (("time",), np.ones(n)),
+         "instrument": (("time",), np.array([instruments[i * len(instruments) // n] for i in range(n)])),
+         "source": (("time",), np.array([f"m{i}.fits" for i in range(n)]))},
+        coords={"time": times, "hemisphere": ["north", "south"]}, attrs={"cap_deg": cap})
+
+
+def _draw(fig):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    FigureCanvasAgg(fig).draw()
+    return fig.canvas.get_renderer()
+
+
+def test_polar_y_labels_name_the_cap_latitude_of_the_record():
+    from polarflux.plots import plot_polar_fields, plot_record_events
+
+    record = _record(["A"], cap=70.0)
+    for fig in (plot_polar_fields(record), plot_record_events(record)):
+        label = fig.axes[0].get_ylabel()
+        assert "70°" in label and "(G)" in label, label
+        assert "60" not in label
+
+
+def test_a_record_of_several_instruments_is_drawn_as_uncorrected():
+    from polarflux.plots import plot_polar_fields
+
+    record = _record(["A", "B"])
+    ax = plot_polar_fields(record).axes[0]
+    assert "uncorrected" in ax.get_title() and "own scale" in ax.get_title()
+    assert "own scale" in ax.get_legend().get_title().get_text()
+    by_label = {line.get_label(): line for line in ax.lines}
+    b_rows = record["instrument"].values == "B"
+    # each instrument is drawn with its own values, as measured (no factor applied)
+    np.testing.assert_array_equal(by_label["north cap, B"].get_ydata(),
+                                  record["mean_field"].sel(hemisphere="north").values[b_rows])
+    one = plot_polar_fields(_record(["A"])).axes[0]
+    assert "uncorrected" not in one.get_title() and not one.get_legend().get_title().get_text()
+
+
+def test_missing_data_in_a_butterfly_is_grey_not_white_and_gaps_stay_gaps():
+    from matplotlib.colors import to_rgba
+
+    from polarflux.plots import NO_DATA_COLOUR, plot_butterfly
+
+    rotation = 27.2753
+    days = np.array([0, 1, 2, 4, 5]) * rotation  # rotation 3 is missing
+    times = np.datetime64("2040-01-01", "ns") + (days * 86400e9).astype("timedelta64[ns]")
+    edges = np.linspace(-1, 1, 11)
+    profiles = np.tile(np.linspace(-1, 1, 10), (5, 1))
+    profiles[::2, -1] = np.nan  # the north pole hidden in every other map
+    fig = plot_butterfly(times, edges, profiles)
+    mesh = fig.axes[0].collections[0]
+    assert mesh.cmap.get_bad() == pytest.approx(to_rgba(NO_DATA_COLOUR))
+    assert np.mean(to_rgba(NO_DATA_COLOUR)[:3]) < 0.75  # grey, far from the near-white of zero field
+    data = mesh.get_array()
+    # five map columns and one no-data column in the gap; the NaN cells are masked (drawn in the bad colour)
+    assert data.shape == (10, 6)
+    assert data.mask[:, 3].all() and data.mask.sum() == 10 + 3
+    x_edges = mesh.get_coordinates()[0, :, 0]
+    assert x_edges[4] - x_edges[3] == pytest.approx(0.8 * rotation)  # the gap's width in days
+    assert "no data" in [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+
+
+@pytest.mark.parametrize(("low", "high", "extend"), [(-50.0, 50.0, "both"), (0.0, 50.0, "max"),
+                                                     (-50.0, 0.0, "min"), (0.0, 0.0, "neither")])
+def test_colour_bars_carry_arrows_where_the_limits_clip(low, high, extend):
+    from polarflux.plots import plot_map
+
+    rng = np.random.default_rng(1)
+    br = np.where(rng.uniform(-1.0, 1.0, (30, 60)) > 0, 1.0, -1.0)  # |B| = 1 G: the limit is 1 G, nothing clips
+    if low:
+        br[0, 0] = low
+    if high:
+        br[-1, -1] = high
+    mesh = plot_map(pf.SynopticMap.from_array(br)).axes[0].collections[0]
+    assert mesh.norm.vmax == pytest.approx(1.0)
+    assert mesh.colorbar.extend == extend
+
+
+def test_map_legend_hides_no_part_of_the_north_cap():
+    from matplotlib.transforms import Bbox
+
+    from polarflux.plots import plot_map
+
+    br = np.zeros((90, 180))
+    br[-2:, :] = np.nan
+    fig = plot_map(pf.SynopticMap.from_array(br), cap_latitude=60.0)
+    renderer = _draw(fig)
+    ax = fig.axes[0]
+    legend = ax.get_legend()
+    texts = [t.get_text() for t in legend.get_texts()]
+    assert "polar-cap boundary (±60°)" in texts and "no data" in texts
+    cap = Bbox(ax.transData.transform([(0.0, np.sin(np.deg2rad(60.0))), (360.0, 1.0)]))
+    assert not legend.get_window_extent(renderer).overlaps(cap)
+    assert ax.get_ylim() == pytest.approx((-1.0, 1.0))
+
+
+def test_calibration_bands_stop_at_zero():
+    from matplotlib.collections import PolyCollection
+
+    from polarflux.plots import plot_calibration
+
+    fit = pf.fit_precursor([1.0, 1.5, 2.0, 2.5], [40.0, 90.0, 150.0, 170.0])
+    assert fit.predict(0.0).low95 < 0  # unclipped, the band runs below zero here
+    result = {"fit": fit, "proxy": "axial_dipole",
+              "projection": {"proxy_at_minimum": {"median": 2.0, "low95": 1.6, "high95": 2.4}},
+              "forecast": {"amplitude": {"median": 140.0, "low95": 90.0, "high95": 190.0}}}
+    ax = plot_calibration(result).axes[0]
+    bands = [c for c in ax.collections if isinstance(c, PolyCollection)]
+    assert len(bands) == 2
+    for band in bands:
+        y = np.concatenate([p.vertices[:, 1] for p in band.get_paths()])
+        assert y.min() == pytest.approx(0.0, abs=1e-9)
+    assert ax.get_ylim()[0] == 0.0
+    fitted = next(line for line in ax.lines if line.get_label().startswith("fit"))
+    y = np.asarray(fitted.get_ydata(), dtype=float)
+    assert np.nanmin(y) >= 0 and np.isnan(y[0])  # the line ends where the fit reaches zero
+
+
+def test_butterfly_rows_are_missing_exactly_where_the_map_has_no_data(tmp_path):
+    """A hidden pole of k rows (as B0 hides it, varying map to map) leaves k rows of no data, no more."""
+    import astropy.units as u
+    from astropy.time import Time
+
+    from polarflux.maps import write_map
+    from polarflux.plots import butterfly_profiles
+
+    rows = np.linspace(-3.0, 3.0, 90)
+    paths = []
+    for k, hidden in enumerate((0, 1, 2)):
+        br = np.repeat(rows[:, None], 36, axis=1)
+        br[90 - hidden:, :] = np.nan
+        br[:, 0] += 0.5  # a longitude structure: the profile is the row mean
+        m = pf.SynopticMap.from_array(br, carrington_rotation=2400 + k, time=Time("2040-01-01") + 27.2753 * k * u.day,
+                                      instrument="A")
+        paths.append(write_map(m, tmp_path / f"m{k}.fits"))
+    record = _record(["A"], n=3).assign(source=("time", np.array(paths)))
+    _, edges, profiles = butterfly_profiles(record, nrows=90)
+    assert profiles.shape == (3, 90)
+    for k, hidden in enumerate((0, 1, 2)):
+        assert np.isnan(profiles[k]).sum() == hidden
+        seen = 90 - hidden
+        np.testing.assert_allclose(profiles[k, :seen], rows[:seen] + 0.5 / 36, rtol=0, atol=1e-5)
