@@ -78,7 +78,7 @@ def plot_pit(result, ax=None, caption: str | None = None, bins: int = 10):
 
 def plot_error_by_lead(result, ax=None, caption: str | None = None, edges=None):
     """Relative error of the median (percent) against lead, with the median |error| per lead bin."""
-    from .hindcast import LEAD_EDGES
+    from .scores import LEAD_EDGES
 
     edges = np.asarray(LEAD_EDGES if edges is None else edges, dtype=np.float64)
     fig, ax = _new_axes(ax, size=(8, 4.5))
@@ -138,8 +138,8 @@ def write_outputs(result, prefix, force: bool = False, caption: str | None = Non
     import csv
 
     from ._io import atomic_path, check_writable
-    from .hindcast import lead_table, summarise
     from .report import save_figure
+    from .scores import lead_table, summarise
 
     paths = hindcast_outputs(result, prefix)
     for path in paths.values():

@@ -1,6 +1,7 @@
 """Surface flux transport: evolve the radial field with rotation, flow, diffusion and new regions."""
 
-from .model import CARRINGTON_PERIOD_DAYS, FluxTransport, TransportEnsemble, model_grid
+from .ensemble import TransportEnsemble
+from .model import CARRINGTON_PERIOD_DAYS, FluxTransport, model_grid
 from .profiles import (
     CARRINGTON_RATE_DEG_PER_DAY,
     SNODGRASS_1983_MAGNETIC,
