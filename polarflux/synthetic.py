@@ -72,7 +72,7 @@ from ._synth_truth import (
     truth_measures,
 )
 from ._version import __version__
-from .errors import SettingsError
+from .errors import OutputExistsError, SettingsError
 from .maps import SynopticMap, quiet_time_warnings, write_map
 from .transport import BipolarRegion, FluxTransport
 
@@ -338,7 +338,7 @@ class _Run:
         if settings.cycles < 1:
             raise SettingsError(f"cycles={settings.cycles} must be at least 1")
         if (out / "truth.json").exists() and not force:
-            raise SettingsError(f"{out}: holds a scenario already; pass force to replace it")
+            raise OutputExistsError(f"{out}: holds a scenario already and was not replaced")
         self.out, self.s = out, settings
         seed = settings.seed
         self.rng_cycles = np.random.default_rng([seed, 2])

@@ -401,3 +401,28 @@ def test_pool_and_dask_give_the_serial_table(world):
     assert calls[-1] == (4, 4) and len(calls) == 4
     _same(serial, hindcast(record, (t, v), dates, members=30, seed=8, jobs=2))
     _same(serial, hindcast(record, (t, v), dates, members=30, seed=8, jobs=2, dask="local"))
+
+
+def test_the_hindcast_command_writes_what_the_library_finds(world, tmp_path, capsys):
+    """`polarflux hindcast` on a record and a sunspot file: the printed summary matches the CSV it writes."""
+    import csv as csvmodule
+
+    from polarflux.cli import main
+    from polarflux.record import write_record
+
+    record, t, v = world
+    rec = write_record(record, tmp_path / "rec.csv")
+    ssn = tmp_path / "ssn.csv"
+    dates = np.datetime_as_string(from_decimal_year(t, True), unit="D")
+    ssn.write_text("date,sunspot_number\n" + "".join(f"{d},{x:.2f}\n" for d, x in zip(dates, v, strict=True)))
+    args = ["hindcast", str(rec), "--sunspots", str(ssn), "--from", "2045-01-01", "--to", "2046-12-31",
+            "--every", "6M", "--members", "20", "--jobs", "1", "--out", str(tmp_path / "h")]
+    assert main(args) == 0
+    out = capsys.readouterr().out
+    with open(tmp_path / "h_hindcast.csv", newline="") as handle:
+        rows = list(csvmodule.DictReader(handle))
+    assert len(rows) == 4  # 2045-01, 2045-07, 2046-01, 2046-07
+    assert f"{len(rows)} forecasts, 0 failed" in out and "caution:" in out
+    assert (tmp_path / "h_hindcast_pit.png").exists()
+    assert main(args) == 2  # outputs exist: not replaced without --force
+    assert "--force" in capsys.readouterr().err

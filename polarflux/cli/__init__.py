@@ -28,6 +28,7 @@ def _handler(name: str):
         "forecast": _commands.forecast,
         "plot": _commands.plot,
         "report": _commands.report,
+        "hindcast": _commands.hindcast,
     }[name]
 
 

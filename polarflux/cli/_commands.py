@@ -196,4 +196,53 @@ def synth(args, parser) -> int:
     print(f"wrote {len(truth['maps'])} invented synoptic maps ({truth['years']:.1f} years, "
           f"{len(truth['cycles'])} cycles, seed {settings.seed}) to {Path(args.out) / 'maps'}")
     print(f"truth: {Path(args.out) / 'truth.json'}; sunspot numbers: {Path(args.out) / 'sunspots.csv'}")
+    if settings.observation != "radial":
+        print("the maps hold line-of-sight field observed at the central meridian: measure them with --field los")
     return EXIT_OK
+
+
+def hindcast(args, parser) -> int:
+    from .. import hindcast as hc
+    from ..events import read_sunspots
+    from ..record import read_record
+
+    if args.members < 10:
+        parser.error(f"--members {args.members}: must be at least 10")
+    if args.jobs < 1:
+        parser.error(f"--jobs {args.jobs}: must be at least 1")
+    start = parse_date(args.start, "--from", parser)
+    end = parse_date(args.end, "--to", parser)
+    record_path = Path(args.record)
+    prefix = Path(args.out) if args.out else record_path.with_suffix("")
+    record = read_record(record_path)
+    sunspots = read_sunspots(args.sunspots)
+    truth = None
+    if args.truth:
+        truth = _read_truth(Path(args.truth))
+    progress = Progress(1, label="hindcast", unit="forecast")
+
+    def report(done: int, total: int) -> None:
+        progress.total = total
+        progress.step(count=done - progress.done)
+
+    result = hc.hindcast(record, sunspots, every=args.every, start=start, end=end, jobs=args.jobs, dask=args.dask,
+                         members=args.members, seed=args.seed, truth=truth, progress=report,
+                         bases=bases(record_path))
+    progress.close()
+    written = hc.write_hindcast(result, prefix, force=args.force, caption=f"polarflux hindcast: {record_path}")
+    print(hc.format_lead_table(hc.lead_table(result)))
+    print(hc.summary_line(result))
+    print("outputs: " + ", ".join(str(p) for p in written))
+    print("caution: hindcast scores describe the method on past cycles; a forecast is probabilistic, and "
+          "operations follow the official space-weather forecasts.")
+    return EXIT_OK
+
+
+def _read_truth(path: Path) -> dict:
+    from .._kinds import check_input_file
+
+    check_input_file(path, "a scenario's truth.json", accept=("text", "toml", "csv"))
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise PolarfluxError(f"{path}: not a scenario's truth.json ({exc})") from None

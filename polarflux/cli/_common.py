@@ -46,7 +46,8 @@ def scenario_settings(args, parser: argparse.ArgumentParser):
         parser.error(f"--cycles {args.cycles}: must be at least 1")
     if args.years is not None and not args.years > 0:
         parser.error(f"--years {args.years:g}: must be a positive number of years")
-    return settings_for(args.resolution, seed=args.seed, cycles=args.cycles, duration_years=args.years)
+    return settings_for(args.resolution, seed=args.seed, cycles=args.cycles, duration_years=args.years,
+                        preset=getattr(args, "preset", None))
 
 
 def generate_scenario(folder: Path, settings, force: bool) -> dict:

@@ -51,13 +51,17 @@ def demo(args, parser) -> int:
         print(f"generated the invented scenario in {scenario}: {len(truth['maps'])} maps, "
               f"{truth['years']:.1f} years, seed {settings.seed} (no real data)")
     files, problems = expand_inputs([scenario / "maps"])
+    if settings.observation != "radial" and args.field == "radial":
+        print("the scenario's maps hold line-of-sight field: measured with --field los")
+        args.field = "los"
     ds, rows = run_measurement(files, problems, args, "measuring")
     csv_path = write_record(ds, folder / "polar_record.csv", force=True)
     nc_path = write_record(ds, folder / "polar_record.nc", force=True)
     series = _truth_series(scenario / "truth_series.csv")
     fig = plot_polar_fields(ds, truth=series,
                             caption=f"polarflux demo: invented scenario in {scenario} (seed {settings.seed}); "
-                            "thin black lines: noise-free truth")
+                            "thin black lines: noise-free truth; the record as measured, before cross-calibration "
+                            "(each instrument on its own scale)")
     figure = folder / "polar_fields.png"
     fig.savefig(figure, dpi=120)
     print(cycles_table(truth))

@@ -91,6 +91,35 @@ def build_parser() -> argparse.ArgumentParser:
     forecast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without suffix + _forecast)")
     forecast.add_argument("--force", action="store_true", help="overwrite existing outputs")
 
+    from ..record import available_cores
+
+    hindcast = commands.add_parser(
+        "hindcast",
+        help="forecasts as of many past dates, each on what existed then, scored against what followed",
+        description="Forecast as of many dates (default: every three months across the record, wherever three "
+        "earlier cycles allow a calibration), each seeing only the maps whose rotation had ended and the "
+        "sunspot months that had ended by its date; score each where the outcome is known (the sunspot "
+        "series, or a scenario's truth.json) by error, PIT, 68 % / 95 % coverage and CRPS, summarised by "
+        "lead. Writes PREFIX_hindcast.csv, PREFIX_hindcast_leads.csv and figures.",
+    )
+    hindcast.add_argument("record", metavar="RECORD", help="a record from 'polarflux measure' (.nc or .csv)")
+    hindcast.add_argument("--sunspots", required=True, metavar="FILE.csv", help="sunspot numbers")
+    hindcast.add_argument("--every", default="3M", metavar="STEP",
+                          help="spacing of the forecast dates: 3M (months), 1Y (years), 27D (days) (default: 3M)")
+    hindcast.add_argument("--from", dest="start", metavar="DATE", help="first forecast date (YYYY-MM-DD)")
+    hindcast.add_argument("--to", dest="end", metavar="DATE", help="last forecast date (YYYY-MM-DD)")
+    hindcast.add_argument("--truth", metavar="truth.json",
+                          help="an invented scenario's truth: outcomes from it instead of the sunspot series")
+    hindcast.add_argument("--members", type=int, default=200, metavar="N",
+                          help="Monte Carlo members of each forecast (default: 200)")
+    hindcast.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
+    hindcast.add_argument("--jobs", type=int, default=available_cores(), metavar="N",
+                          help="processes to use (default: the cores available)")
+    hindcast.add_argument("--dask", metavar="ADDRESS",
+                          help="run the forecasts on a dask.distributed cluster: a scheduler address, or 'local'")
+    hindcast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without its suffix)")
+    hindcast.add_argument("--force", action="store_true", help="overwrite existing outputs")
+
     plot = commands.add_parser(
         "plot",
         help="draw one figure: polar, butterfly, map, fan or calibration",
@@ -145,7 +174,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def _add_scenario_options(parser: argparse.ArgumentParser) -> None:
-    from ..synthetic import RESOLUTIONS
+    from ..synthetic import PRESETS, RESOLUTIONS
 
     parser.add_argument("--seed", type=int, default=2051, help="random seed (default: %(default)s)")
     parser.add_argument("--cycles", type=int, default=4, metavar="K", help="solar cycles (default: 4)")
@@ -153,6 +182,11 @@ def _add_scenario_options(parser: argparse.ArgumentParser) -> None:
                         help="model and map grids (default: standard: model 1 degree, maps 2 and 1 degree)")
     parser.add_argument("--years", type=float, default=None, metavar="Y",
                         help="stop the scenario after Y years (default: when the last cycle ends)")
+    parser.add_argument("--preset", choices=tuple(PRESETS), default=None,
+                        help="a harder world: 'hard' turns on transport unlike the forecast's priors, "
+                        "anti-Hale and very large regions, a non-linear precursor law, line-of-sight maps "
+                        "assembled over each rotation, saturating instruments and long gaps (default: none, "
+                        "the demo's world; docs/methods.md lists the settings)")
 
 
 def _add_measure_options(parser: argparse.ArgumentParser) -> None:
