@@ -321,22 +321,11 @@ def _run(payload: tuple, dates: np.ndarray, jobs: int, dask: str | None, progres
 
 def _run_dask(payload: tuple, dates: np.ndarray, jobs: int, address: str, tick) -> None:
     """Batches of dates as dask tasks; the record and sunspot series travel to each worker once."""
-    try:
-        from dask.distributed import Client, LocalCluster
+    from ._cluster import dask_client
+
+    with dask_client(address, jobs) as client:
         from dask.distributed import as_completed as dask_completed
-    except ImportError:
-        raise SettingsError("--dask needs the dask extra: pip install 'polarflux[dask]'") from None
-    cluster = None
-    if address == "local":
-        cluster = LocalCluster(n_workers=max(1, int(jobs)), threads_per_worker=1, processes=True,
-                               host="127.0.0.1", dashboard_address=None)
-        client = Client(cluster)
-    else:
-        try:
-            client = Client(address, timeout=30)
-        except OSError as exc:
-            raise SettingsError(f"--dask {address}: cannot reach the scheduler ({exc})") from None
-    try:
+
         workers = max(1, len(client.scheduler_info().get("workers", {})) or int(jobs))
         size = max(1, min(8, dates.size // (3 * workers) or 1))
         shared = client.scatter(payload, broadcast=True)
@@ -345,10 +334,6 @@ def _run_dask(payload: tuple, dates: np.ndarray, jobs: int, address: str, tick) 
         for future in dask_completed(futures):
             tick(future.result())
             future.release()
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
 
 
 # --------------------------------------------------------------------------- outcomes

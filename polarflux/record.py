@@ -223,32 +223,18 @@ def _dispatch_dask(work: list[tuple], jobs: int, address: str):
     """Batches of maps as dask tasks; each worker process reduces its batch to rows (dask's own guidance:
     tasks big enough that their overhead stays small, no arrays shipped back, process workers for GIL-bound work).
     """
-    try:
-        from dask.distributed import Client, LocalCluster, as_completed
-    except ImportError:
-        raise SettingsError("--dask needs the dask extra: pip install 'polarflux[dask]'") from None
-    cluster = None
-    if address == "local":
-        cluster = LocalCluster(n_workers=int(jobs), threads_per_worker=1, processes=True, host="127.0.0.1",
-                               dashboard_address=None)
-        client = Client(cluster)
-    else:
-        try:
-            client = Client(address, timeout=30)
-        except OSError as exc:
-            raise SettingsError(f"--dask {address}: cannot reach the scheduler ({exc})") from None
-    try:
+    from ._cluster import dask_client
+
+    with dask_client(address, jobs) as client:
+        from dask.distributed import as_completed as dask_completed
+
         workers = max(1, len(client.scheduler_info().get("workers", {})) or int(jobs))
         size = max(1, min(64, len(work) // (4 * workers) or 1))
         batches = [work[i: i + size] for i in range(0, len(work), size)]
         futures = client.map(_measure_batch, batches, pure=False)
-        for future in as_completed(futures):
+        for future in dask_completed(futures):
             yield from future.result()
             future.release()
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
 
 
 def iter_measurements(

@@ -191,7 +191,7 @@ def test_same_seed_gives_identical_arrays_and_another_seed_does_not(tmp_path):
 def test_an_existing_scenario_is_not_overwritten(tmp_path):
     settings = settings_for("low", cycles=1, duration_years=0.1, seed=1, missing_rotations=0)
     write_scenario(tmp_path, settings)
-    with pytest.raises(pf.SettingsError, match="holds a scenario already"):
+    with pytest.raises(pf.OutputExistsError, match="holds a scenario already"):
         write_scenario(tmp_path, settings)
 
 

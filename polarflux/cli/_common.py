@@ -67,6 +67,7 @@ def generate_scenario(folder: Path, settings, force: bool) -> dict:
 
 def bases(path: Path) -> tuple[str, ...]:
     """Folders against which a record's relative map paths are tried: here, beside it, above it."""
+    path = Path(path).resolve()  # "rec.nc".parent.parent is "." again; the folder above needs the full path
     return ("", str(path.parent), str(path.parent.parent))
 
 
