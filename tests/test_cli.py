@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import csv
-import os
 import re
 import subprocess
 import sys
@@ -68,10 +67,10 @@ def test_bad_usage_exits_2(args, tmp_path, monkeypatch):
     assert exc.value.code == 2
 
 
-def test_no_inputs_found_exits_2(tmp_path):
-    with pytest.raises(SystemExit) as exc:
-        main(["measure", str(tmp_path / "nothing*.fits"), "--out", str(tmp_path / "o.csv")])
-    assert exc.value.code == 2
+def test_no_inputs_found_exits_2(tmp_path, capsys):
+    assert main(["measure", str(tmp_path / "nothing*.fits"), "--out", str(tmp_path / "o.csv")]) == 2
+    err = capsys.readouterr().err
+    assert "nothing*.fits: no such file" in err and "no input files found" in err and "usage:" not in err
     assert not (tmp_path / "o.csv").exists()
 
 
@@ -123,17 +122,3 @@ def test_readme_test_command_is_what_ci_runs():
     assert test_lines, "README gives no test command"
     command = test_lines[0].split("&&")[-1].strip()
     assert command in ci
-
-
-def test_readme_demo_command_runs(tmp_path):
-    # The README's first block installs and runs the demo; run its demo part here.
-    first = _readme_commands()[0]
-    demo = [part.strip() for line in first.splitlines() for part in line.split("&&") if "polarflux demo" in part]
-    assert demo, "README's first command does not run the demo"
-    env = dict(os.environ)
-    bindir = os.path.dirname(sys.executable)
-    env["PATH"] = bindir + os.pathsep + env.get("PATH", "")
-    done = subprocess.run(demo[0], shell=True, cwd=tmp_path, capture_output=True, text=True, env=env)
-    assert done.returncode == 0, done.stderr
-    assert re.search(r"measured (\d+) of \1 maps, 0 failed", done.stdout)
-    assert (tmp_path / "polarflux-demo" / "polar_fields.png").exists()
