@@ -24,6 +24,7 @@ KIND_WORDS = {
     "transport-run": "a transport run (from 'polarflux transport')",
     "sunspots": "a sunspot series (CSV)",
     "toml": "a TOML file",
+    "json": "a JSON file",
     "csv": "a CSV file",
     "text": "a text file",
     "binary": "a binary file",
@@ -69,6 +70,8 @@ def file_kind(path: str | os.PathLike) -> str:
         return "record"
     if suffix == ".toml":
         return "toml"
+    if suffix == ".json" or first.startswith("{"):
+        return "json"
     if "sunspot" in first:
         return "sunspots"
     if suffix == ".csv" or "," in first or ";" in first:

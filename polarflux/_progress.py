@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import shutil
 import sys
 from typing import TextIO
 
@@ -24,8 +25,10 @@ class Progress:
             enabled = bool(getattr(self.stream, "isatty", lambda: False)())
         self.failed = 0
         self.done = 0
+        # a terminal that reports no width (a pseudo-terminal without a size) would get no bar at all
+        width = shutil.get_terminal_size((100, 24)).columns or 100
         self._bar = tqdm(total=max(int(total), 0), desc=label, unit=unit, file=self.stream, disable=not enabled,
-                         leave=False, dynamic_ncols=True)
+                         leave=False, ncols=min(width, 120))
 
     @property
     def total(self) -> int:

@@ -52,6 +52,8 @@ def kinds(tmp_path_factory):
     (folder / "empty.csv").write_bytes(b"")
     wrong["empty"] = folder / "empty.csv"
     wrong["missing"] = folder / "not-there.nc"
+    (folder / "truth.json").write_text('{"cycles": [], "maps": []}\n', encoding="utf-8")
+    wrong["json"] = folder / "truth.json"
     (folder / "a-folder.nc").mkdir()
     wrong["folder"] = folder / "a-folder.nc"
     return good, wrong
@@ -81,13 +83,15 @@ def _slots(good: dict, tmp: Path) -> dict[str, tuple]:
                                        "--members", "10", "--jobs", "1"], {"record"}),
         "hindcast --sunspots": (lambda f: ["hindcast", str(good["record"]), "--sunspots", f, "--out", out,
                                            "--members", "10", "--jobs", "1"], {"sunspots"}),
+        "hindcast --truth": (lambda f: ["hindcast", str(good["record"]), "--sunspots", str(good["sunspots"]),
+                                        "--truth", f, "--out", out, "--members", "10", "--jobs", "1"], {"json"}),
         "report RECORD": (lambda f: ["report", f, "--out", out + ".html"], {"record"}),
         "report --sunspots": (lambda f: ["report", str(good["record"]), "--sunspots", f, "--out", out + ".html"],
                               {"sunspots"}),
     }
 
 
-WRONG_KINDS = ("map", "record", "run", "toml", "sunspots", "csv", "binary", "empty", "missing", "folder")
+WRONG_KINDS = ("map", "record", "run", "toml", "sunspots", "csv", "json", "binary", "empty", "missing", "folder")
 
 
 def test_every_command_refuses_every_wrong_kind_in_one_line(kinds, tmp_path, capsys):
@@ -158,3 +162,12 @@ def test_measure_names_an_input_that_is_no_map_and_writes_nothing(kinds, tmp_pat
     err = capsys.readouterr().err
     assert status == 2 and not out.exists() and "Traceback" not in err
     assert Path(wrong[kind]).name in err.splitlines()[0]
+
+
+def test_a_wrong_input_is_named_before_an_existing_output(kinds, tmp_path, capsys):
+    """Fixing one error should not reveal another that was there all along: inputs are checked first."""
+    good, wrong = kinds
+    (tmp_path / "ev.json").write_text("{}")
+    assert main(["events", str(good["record"]), "--sunspots", str(wrong["record"]), "--out", str(tmp_path / "ev")]) == 2
+    err = capsys.readouterr().err
+    assert "expected a sunspot-number series" in err and "exists already" not in err

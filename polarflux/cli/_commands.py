@@ -33,7 +33,7 @@ def transport(args, parser) -> int:
     with atomic_path(out, force=args.force) as tmp:
         ds.to_netcdf(tmp, engine="netcdf4")
     end = ds.isel(time=-1)
-    print(f"ran {ds.attrs['years']:g} years in {job.steps} steps with {len(job.regions)} regions; "
+    print(f"ran {ds.attrs['years']:g} years in {job.steps} steps with {_count(len(job.regions), 'region')}; "
           f"at the end: north {float(end.north_mean_field):.3f} G, south {float(end.south_mean_field):.3f} G, "
           f"axial dipole {float(end.axial_dipole):.3f} G")
     print(f"written to {out}")
@@ -48,10 +48,10 @@ def events(args, parser) -> int:
     from ..tables import events_csv, events_table
 
     record_path = Path(args.record)
-    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_events")
-    outputs = outputs_for(prefix, {"json": ".json", "csv": ".csv", "png": ".png", "nc": "_merged.nc"}, args.force)
     record = read_record(record_path)
     sunspots = read_sunspots(args.sunspots) if args.sunspots else (None, None)
+    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_events")
+    outputs = outputs_for(prefix, {"json": ".json", "csv": ".csv", "png": ".png", "nc": "_merged.nc"}, args.force)
     merged = merge_instruments(record, reference=args.reference, per_band=args.per_band, viewing=args.viewing)
     found = record_events(merged, *sunspots)
     found["record"] = str(record_path)
@@ -83,12 +83,12 @@ def forecast(args, parser) -> int:
         parser.error(f"--members {args.members}: must be at least 10")
     as_of = parse_date(args.as_of, "--as-of", parser)
     record_path = Path(args.record)
-    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
-    outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
-                          args.force)
     record = read_record(record_path)
     t, v = read_sunspots(args.sunspots)
     calibration = read_calibration(args.calibration) if args.calibration else None
+    prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
+    outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
+                          args.force)
     result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of,
                                   members=args.members, seed=args.seed, bases=bases(record_path))
     print(forecast_text(result))
@@ -120,7 +120,6 @@ def plot(args, parser) -> int:
     out = Path(args.out)
     if out.suffix.lower() not in (".png", ".pdf", ".svg"):
         parser.error(f"--out {out}: figures are written as .png, .pdf or .svg")
-    check_writable(out, args.force)
     source = Path(args.input)
     caption = f"polarflux plot {args.kind}: {source}"
     if args.kind == "map":
@@ -128,10 +127,13 @@ def plot(args, parser) -> int:
         from ..plots import plot_map
 
         check_input_file(source, "a synoptic map (FITS)", accept=("fits",))
-        fig = plot_map(read_map(source), cap_latitude=args.cap, caption=caption)
+        m = read_map(source)
+        check_writable(out, args.force)
+        fig = plot_map(m, cap_latitude=args.cap, caption=caption)
     elif args.kind == "butterfly" and check_input_file(
             source, "a record (.nc or .csv from 'polarflux measure') or a transport run (.nc)",
             accept=("record", "csv", "transport-run")) == "transport-run":
+        check_writable(out, args.force)
         fig = _run_butterfly(source, caption)
     else:
         from ..events import read_sunspots
@@ -141,6 +143,7 @@ def plot(args, parser) -> int:
             parser.error(f"plot {args.kind} needs --sunspots FILE.csv")
         record = read_record(source)
         sunspots = read_sunspots(args.sunspots) if args.sunspots else None
+        check_writable(out, args.force)
         analysis = analyse(record, sunspots, bases=bases(source))
         made = figures(analysis, kinds=(args.kind,), caption=caption)
         if args.kind not in made:
@@ -176,10 +179,10 @@ def report(args, parser) -> int:
     out = Path(args.out)
     if out.suffix.lower() not in (".html", ".htm"):
         parser.error(f"--out {out}: the report is an .html page")
-    check_writable(out, args.force)
     record_path = Path(args.record)
     record = read_record(record_path)
     sunspots = read_sunspots(args.sunspots) if args.sunspots else None
+    check_writable(out, args.force)
     analysis = analyse(record, sunspots, bases=bases(record_path))
     figs = figures(analysis, caption=f"polarflux report: {record_path}")
     write_report(out, analysis, figs, title=f"Polar-field report: {record_path.name}", source=str(record_path),
@@ -194,7 +197,7 @@ def synth(args, parser) -> int:
     settings = scenario_settings(args, parser)
     truth = generate_scenario(Path(args.out), settings, args.force)
     print(f"wrote {len(truth['maps'])} invented synoptic maps ({truth['years']:.1f} years, "
-          f"{len(truth['cycles'])} cycles, seed {settings.seed}) to {Path(args.out) / 'maps'}")
+          f"{_count(len(truth['cycles']), 'cycle')}, seed {settings.seed}) to {Path(args.out) / 'maps'}")
     print(f"truth: {Path(args.out) / 'truth.json'}; sunspot numbers: {Path(args.out) / 'sunspots.csv'}")
     if settings.observation != "radial":
         print("the maps hold line-of-sight field observed at the central meridian: measure them with --field los")
@@ -219,6 +222,10 @@ def hindcast(args, parser) -> int:
     truth = None
     if args.truth:
         truth = _read_truth(Path(args.truth))
+    # the tables and the summary figures, checked before the long run (the per-cycle figures are
+    # checked again, with these, before anything is written)
+    outputs_for(prefix, {k: f"_hindcast{k}" for k in (".csv", "_leads.csv", "_pit.png", "_error_lead.png")},
+                args.force)
     progress = Progress(1, label="hindcast", unit="forecast")
 
     def report(done: int, total: int) -> None:
@@ -241,8 +248,12 @@ def hindcast(args, parser) -> int:
 def _read_truth(path: Path) -> dict:
     from .._kinds import check_input_file
 
-    check_input_file(path, "a scenario's truth.json", accept=("text", "toml", "csv"))
+    check_input_file(path, "a scenario's truth.json", accept=("json",))
     try:
         return json.loads(path.read_text(encoding="utf-8"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise PolarfluxError(f"{path}: not a scenario's truth.json ({exc})") from None
+
+
+def _count(n: int, noun: str) -> str:
+    return f"{n} {noun}" + ("" if n == 1 else "s")

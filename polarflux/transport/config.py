@@ -43,7 +43,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..errors import SettingsError
+from ..errors import PolarfluxError, SettingsError
 from .model import CARRINGTON_PERIOD_DAYS, FluxTransport, _steps
 from .sources import BipolarRegion, joy_tilt
 
@@ -181,7 +181,10 @@ def _initial(table: dict, base: Path, source: str):
         path = Path(table["map"])
         if not path.is_absolute():
             path = base / path
-        return read_map(path, field=field)
+        try:
+            return read_map(path, field=field)
+        except PolarfluxError as exc:
+            raise SettingsError(f'{source}: [initial] map = "{table["map"]}" (read as {path}): {exc}') from None
     value = table[kind]
     if kind == "dipole":
         return lambda lat, lon: value * np.sin(np.deg2rad(lat)) + 0.0 * lon
