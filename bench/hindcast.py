@@ -120,7 +120,7 @@ def main() -> None:
     print(format_lead_table(lead_table(table)))
     print()
     print(summary_line(table))
-    outside = summarise(table)["forecasts"] - sum(r["forecasts"] for r in lead_table(table))
+    outside = summarise(table)["forecasts"] - sum(r["forecasts"] for r in lead_table(table, outside=False))
     if outside:
         print(f"({outside} forecasts fall outside the lead bins: their date is near a minimum of the series but "
               "the truth's minimum of the cycle forecast lies elsewhere)")

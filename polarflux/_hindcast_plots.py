@@ -96,7 +96,9 @@ def plot_error_by_lead(result, ax=None, caption: str | None = None, edges=None):
     ax.plot(centres, medians, color=_OUTCOME, marker="s", linewidth=1.5, label="median |relative error| per bin")
     ax.axhline(0.0, color="0.6", linewidth=0.8)
     ax.axvline(0.0, color="0.3", linestyle=":", linewidth=1.0, label="minimum")
-    ax.set_xlim(edges[0] - 0.25, edges[-1] + 0.25)
+    low = min(edges[0], float(np.min(lead[good]))) if good.any() else edges[0]
+    high = max(edges[-1], float(np.max(lead[good]))) if good.any() else edges[-1]
+    ax.set_xlim(low - 0.25, high + 0.25)  # every forecast shown, also those outside the bins
     ax.set_xlabel("lead: forecast date minus the minimum that starts the cycle (years)")
     ax.set_ylabel("relative error of the median (%)")
     ax.set_title("Forecast error against lead")

@@ -91,12 +91,23 @@ def summarise(result, lead_range: tuple[float, float] | None = None) -> dict:
     }
 
 
-def lead_table(result, edges: Sequence[float] = LEAD_EDGES) -> list[dict]:
-    """:func:`summarise` per lead bin ``[edges[i], edges[i + 1])``, the last bin closed."""
+def lead_table(result, edges: Sequence[float] = LEAD_EDGES, outside: bool = True) -> list[dict]:
+    """:func:`summarise` per lead bin ``[edges[i], edges[i + 1])``, the last bin closed.
+
+    With ``outside``, forecasts whose lead falls before the first edge or after the last
+    get a row of their own (only when there are any), so the rows add up to every forecast
+    with a known lead.
+    """
     rows = []
+    lead = result["lead"].values
+    if outside and np.any(lead < edges[0]):
+        rows.append(summarise(result, (-np.inf, edges[0])))
     for k, (a, b) in enumerate(zip(edges[:-1], edges[1:], strict=True)):
         rows.append(summarise(result, (a, b + (1e-9 if k == len(edges) - 2 else 0.0))))
         rows[-1]["lead_range"] = (a, b)
+    if outside and np.any(lead > edges[-1] + 1e-9):
+        rows.append(summarise(result, (edges[-1] + 1e-9, np.inf)))
+        rows[-1]["lead_range"] = (edges[-1], np.inf)
     return rows
 
 

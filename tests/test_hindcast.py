@@ -426,3 +426,15 @@ def test_the_hindcast_command_writes_what_the_library_finds(world, tmp_path, cap
     assert (tmp_path / "h_hindcast_pit.png").exists()
     assert main(args) == 2  # outputs exist: not replaced without --force
     assert "--force" in capsys.readouterr().err
+
+
+def test_forecasts_outside_the_lead_bins_get_rows_of_their_own():
+    """The table's rows add up to every forecast with a known lead (none silently left out)."""
+    lead = [-6.0, -3.5, 0.5, 3.0, 3.5]
+    table = _table(lead=lead, inside68=[1] * 5, inside95=[1] * 5, relative_error=[0.1] * 5, crps=[1.0] * 5,
+                   crps_climatology=[2.0] * 5, status=["ok"] * 5)
+    rows = lead_table(table)
+    assert rows[0]["lead_range"] == (-np.inf, -4.0) and rows[0]["forecasts"] == 1
+    assert rows[-1]["lead_range"] == (2.0, np.inf) and rows[-1]["forecasts"] == 2
+    assert sum(r["forecasts"] for r in rows) == 5
+    assert sum(r["forecasts"] for r in lead_table(table, outside=False)) == 2
