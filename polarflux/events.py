@@ -60,6 +60,13 @@ def _cadence_years(t: np.ndarray) -> float:
     return float(np.median(steps))
 
 
+#: Near the end of a series a minimum is declared only after the smoothed series has risen from
+#: it for this long (years) ...
+CONFIRM_YEARS = 0.5
+#: ... and by this fraction of the series' highest smoothed value.
+CONFIRM_RISE = 0.05
+
+
 def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> CycleExtrema:
     """Solar-cycle minima and maxima of a sunspot-number series (monthly or yearly).
 
@@ -67,9 +74,13 @@ def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> Cycl
     :func:`smooth_13_month` first; yearly series are used as they are (each
     value already averages a year). A minimum is the lowest smoothed value within
     ``min_separation_years`` / 2 either side; minima closer than
-    ``min_separation_years`` keep the lower. At either end of the series a low
-    point counts only if it is under a tenth of the highest value within one
-    separation of it (so a declining phase is not taken for a minimum). Between
+    ``min_separation_years`` keep the lower. Within half a separation of the end
+    of the series a low point counts only once the smoothed series has risen from
+    it for :data:`CONFIRM_YEARS` (for yearly values: one year) and by
+    :data:`CONFIRM_RISE` of its highest value, so the decline of a cycle is never
+    taken for its minimum; only data up to the series' end are used. The first
+    value of a series counts only if it is under a tenth of the highest value
+    within one separation after it. Between
     consecutive minima the maximum is the highest smoothed value; after the last
     minimum, the highest value counts as a maximum once the series is two years
     past it and below half of it. Values are those of the smoothed series.
@@ -88,14 +99,22 @@ def find_cycle_extrema(times, values, min_separation_years: float = 7.0) -> Cycl
     half = 0.5 * min_separation_years
     usable = np.flatnonzero(np.isfinite(smooth))
     candidates = []
+    peak_all = float(np.max(smooth[usable])) if usable.size else 0.0
+    confirm = max(CONFIRM_YEARS, cadence * 0.99)
     for i in usable:
         window = (t >= t[i] - half) & (t <= t[i] + half) & np.isfinite(smooth)
         if smooth[i] > np.min(smooth[window]):
             continue
-        inner = (t[i] - t[usable[0]] >= cadence * 0.99) and (t[usable[-1]] - t[i] >= cadence * 0.99)
-        if not inner:
-            # At either end of the series a low point is a minimum only if it is deep:
-            # under a tenth of the activity within a cycle-length on the inner side.
+        if t[usable[-1]] - t[i] < half:
+            # The window runs past the end of the series: the low point is a minimum only once the
+            # series has risen from it (common practice: a minimum is confirmed months after it,
+            # once the new cycle's activity grows); until then it may be the old cycle's decline.
+            later = t[usable[-1]] - t[i]
+            if later < confirm or smooth[usable[-1]] - smooth[i] < CONFIRM_RISE * peak_all:
+                continue
+        elif t[i] - t[usable[0]] < cadence * 0.99:
+            # The first value: a minimum only if deep, under a tenth of the activity within a
+            # cycle-length after it (so a series that starts in a decline does not begin with one).
             near = (np.abs(t - t[i]) <= min_separation_years) & np.isfinite(smooth)
             if smooth[i] > 0.1 * np.max(smooth[near]):
                 continue
