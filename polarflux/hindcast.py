@@ -365,7 +365,10 @@ def outcomes_from_truth(truth) -> list[dict]:
     targets only (common practice: a typical rise time).
     """
     if not isinstance(truth, dict):
+        from ._kinds import check_input_file
+
         path = os.fspath(truth)
+        check_input_file(path, "a scenario's truth.json", accept=("json",))
         try:
             with open(path, encoding="utf-8") as handle:
                 truth = json.load(handle)
@@ -502,6 +505,8 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
         t_ssn, v_ssn = read_sunspots(sunspots)
     else:
         t_ssn, v_ssn = (np.asarray(a, dtype=np.float64) for a in sunspots)
+    # the outcomes first: a truth file that cannot be read fails before the long run, not after it
+    outcomes = outcomes_from_truth(truth) if truth is not None else outcomes_from_series(t_ssn, v_ssn)
     if dates is None:
         dates = forecast_dates(record, t_ssn, v_ssn, every=every, start=start, end=end)
         if dates.size == 0:
@@ -514,7 +519,6 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
             raise SettingsError("forecast dates must be finite")
     payload = (record, t_ssn, v_ssn, int(members), int(seed), dict(forecast_options))
     rows = _run(payload, np.asarray(dates, dtype=np.float64), int(jobs), dask, progress)
-    outcomes = outcomes_from_truth(truth) if truth is not None else outcomes_from_series(t_ssn, v_ssn)
     n = len(rows)
     data = {k: np.full(n, np.nan) for k in _NUMERIC}
     text = {k: [""] * n for k in _TEXT}

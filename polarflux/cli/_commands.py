@@ -219,9 +219,7 @@ def hindcast(args, parser) -> int:
     prefix = Path(args.out) if args.out else record_path.with_suffix("")
     record = read_record(record_path)
     sunspots = read_sunspots(args.sunspots)
-    truth = None
-    if args.truth:
-        truth = _read_truth(Path(args.truth))
+    truth = args.truth  # a path: read (and refused by name) before the forecasts run
     # the tables and the summary figures, checked before the long run (the per-cycle figures are
     # checked again, with these, before anything is written)
     outputs_for(prefix, {k: f"_hindcast{k}" for k in (".csv", "_leads.csv", "_pit.png", "_error_lead.png")},
@@ -243,16 +241,6 @@ def hindcast(args, parser) -> int:
     print("caution: hindcast scores describe the method on past cycles; a forecast is probabilistic, and "
           "operations follow the official space-weather forecasts.")
     return EXIT_OK
-
-
-def _read_truth(path: Path) -> dict:
-    from .._kinds import check_input_file
-
-    check_input_file(path, "a scenario's truth.json", accept=("json",))
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise PolarfluxError(f"{path}: not a scenario's truth.json ({exc})") from None
 
 
 def _count(n: int, noun: str) -> str:
