@@ -41,6 +41,7 @@ from ._header import (
 )
 from ._pixels import RowStatistics, _copy_with_statistics, _row_statistics
 from .errors import MapFormatError
+from .los import LOS_MAX_FACTOR
 
 __all__ = ["SynopticMap", "read_map", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
 
@@ -50,10 +51,6 @@ GRIDS = ("sine-latitude", "equal-angle")
 #: (sunspot umbrae reach a few kG), so a map beyond it carries a unit or scaling error.
 PLAUSIBLE_MAX_G = 1e5
 
-#: Largest factor 1/cos(latitude) applied when converting line-of-sight field to
-#: radial (``field="los"``). 10 corresponds to 84.3 degrees latitude; poleward of
-#: that the factor is held at 10 so that noise in the last rows is not blown up.
-LOS_MAX_FACTOR = 10.0
 
 _INSTRUMENT_KEYS = ("INSTRUME", "TELESCOP", "ORIGIN")
 
@@ -79,6 +76,9 @@ class SynopticMap:
         ``grid`` is "sine-latitude" (equal-area rows) or "equal-angle".
     header : dict
         The header keywords the map was read from (upper-case keys).
+    los_b0, los_b0_how : ndarray or None, str
+        For a map read as line-of-sight field: each column's B0 angle (degrees)
+        used to convert it to radial field, and where that B0 came from.
 
     The constructor copies ``br`` (``copy=False`` hands the array over: do not
     change it afterwards except through ``m.br``).
@@ -124,6 +124,8 @@ class SynopticMap:
         self.grid = grid
         self.source = source
         self.header = dict(header or {})
+        self.los_b0: np.ndarray | None = None
+        self.los_b0_how = ""
         name = self.source or "map"
         if values.ndim != 2:
             raise MapFormatError(f"{name}: br must be 2-D (lat, lon), got shape {values.shape}")
@@ -267,7 +269,7 @@ def read_map(
         For a 3-D cube, the index of the plane (along the slowest FITS axis) to
         read. A cube is refused without it.
     los_max_factor : float
-        Cap of the 1/cos(latitude) factor for ``field="los"``.
+        Cap of the 1/cos(latitude - B0) factor for ``field="los"``.
 
     Returns
     -------
@@ -445,12 +447,6 @@ def _build_map(
     if factor != 1.0:
         values *= factor
         stats.scale(values, factor)
-    if field == "los":
-        cosine = np.cos(np.deg2rad(lat_axis.centres))
-        inverse = 1.0 / np.maximum(cosine, 1.0 / los_max_factor)
-        values *= inverse[:, None]
-        stats.scale(values, inverse)
-
     with quiet_time_warnings():
         time = _map_time(header, source)
         rotation = _rotation_number(header, lon_axis.rotation, time, source)
@@ -463,6 +459,13 @@ def _build_map(
                 time = carrington_rotation_time(rotation + 0.5).utc
             except Exception as exc:  # ERFA refuses dates it cannot represent
                 raise MapFormatError(f"{source}: rotation {rotation} gives no usable date ({_first_line(exc)})") from None
+    los_b0, los_b0_how = None, ""
+    if field == "los":
+        from .los import column_b0, los_to_radial
+
+        los_b0, los_b0_how = column_b0(header, lon_axis.centres, rotation, time, source)
+        los_to_radial(values, lat_axis.centres, los_b0, los_max_factor)
+        stats = _row_statistics(values)
     instrument = ""
     for key in _INSTRUMENT_KEYS:
         if str(header.get(key, "")).strip():
@@ -483,6 +486,7 @@ def _build_map(
         copy=False,
     )
     m._row_stats = stats
+    m.los_b0, m.los_b0_how = los_b0, los_b0_how
     return m
 
 

@@ -238,16 +238,18 @@ def test_cube_needs_a_plane(tmp_path):
     assert np.all(pf.read_map(path, plane=2).br == 2.0)
 
 
-def test_los_field_is_divided_by_cos_latitude_with_a_cap(tmp_path):
+def test_los_field_is_divided_by_cos_latitude_minus_b0_with_a_cap(tmp_path):
+    # B0COL0 = 0: every column seen from the solar equator, so the divisor is cos(latitude)
     data = np.ones((180, 360), np.float32)
-    path = write_fits(tmp_path / "los.fits", data, cea_header())
+    path = write_fits(tmp_path / "los.fits", data, cea_header(B0COL0=0.0))
     radial = pf.read_map(path, field="los")
     expected = 1.0 / np.maximum(np.cos(np.deg2rad(radial.lat)), 1 / pf.maps.LOS_MAX_FACTOR)
     np.testing.assert_allclose(radial.br[:, 0], expected, rtol=1e-12)
     assert radial.br.max() <= pf.maps.LOS_MAX_FACTOR
+    assert "B0COLk" in radial.los_b0_how
     # On a 1-degree equal-angle grid the last rows (89.5 degrees) reach the cap.
     hdr = {"CTYPE1": "CRLN-CAR", "CTYPE2": "CRLT-CAR", "CRPIX1": 0.5, "CRVAL1": 0, "CDELT1": 1,
-           "CRPIX2": 90.5, "CRVAL2": 0, "CDELT2": 1, "BUNIT": "G"}
+           "CRPIX2": 90.5, "CRVAL2": 0, "CDELT2": 1, "BUNIT": "G", "B0COL0": 0.0}
     car = pf.read_map(write_fits(tmp_path / "los_car.fits", np.ones((180, 360), np.float32), hdr), field="los")
     assert car.br.max() == pytest.approx(pf.maps.LOS_MAX_FACTOR, rel=1e-12)
     assert car.br[90, 0] == pytest.approx(1 / np.cos(np.deg2rad(0.5)), rel=1e-12)

@@ -1,0 +1,162 @@
+"""Line-of-sight synoptic maps: each column's B0 angle and the conversion to radial field.
+
+A synoptic map built from central-meridian observations holds, in each longitude
+column, the line-of-sight field seen when that column crossed the central
+meridian. For a radial field B_r the line of sight meets the local vertical at
+the angle (latitude - B0), B0 being the heliographic latitude of the observer at
+that moment, so
+
+    B_los = B_r cos(latitude - B0),   B_r = B_los / cos(latitude - B0).
+
+B0 swings by +-7.25 degrees over the year and by up to about 3 degrees within one
+rotation, so each column has its own. :func:`column_b0` takes it, in this order,
+from
+
+1. ``B0COL0`` ... ``B0COL3``: a polynomial in x = (CRLN - 180) / 180 giving each
+   column's B0 in degrees (polarflux's own keywords, written by its scenario
+   generator);
+2. ``TCOL0`` ... ``TCOL3``: the same polynomial form for each column's
+   observation time as MJD (UTC), B0 then from ``sunpy.coordinates.sun.B0``;
+3. the Carrington rotation number N: the column at Carrington longitude L
+   crosses the central meridian at rotation number N + 1 - L / 360
+   (``sunpy.coordinates.sun.carrington_rotation_time``), B0 at that time;
+4. one value for all columns: ``CRLT_OBS`` (FITS WCS, Thompson 2006) or B0 at
+   the map's time.
+
+Near the limb the divisor goes to zero and noise would be blown up; the factor
+1 / cos(latitude - B0) is capped at ``max_factor`` (10 by default: 84.3 degrees
+from the disk centre). Pixels beyond the limb are normally blank in the file.
+
+References
+----------
+Thompson, W. T. 2006, A&A 449, 791 (``CRLT_OBS``; heliographic coordinates).
+Svalgaard, L., Duvall, T. L., Jr., & Scherrer, P. H. 1978, Sol. Phys. 58, 225
+(polar fields are close to radial, which the conversion assumes).
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from collections.abc import Mapping
+
+import numpy as np
+
+from .errors import MapFormatError
+
+__all__ = ["column_b0", "los_to_radial", "LOS_MAX_FACTOR"]
+
+#: Largest factor 1/cos(latitude - B0) applied when converting line-of-sight field to radial.
+#: 10 corresponds to 84.3 degrees from the disk centre; farther out the factor is held at 10.
+LOS_MAX_FACTOR = 10.0
+
+_NODES = 13  # B0 is taken at this many times across a rotation and interpolated (smooth to 0.001 deg)
+
+
+def _polynomial(header: Mapping, prefix: str) -> list[float] | None:
+    coefficients = []
+    for k in range(10):
+        value = header.get(f"{prefix}{k}")
+        if value is None:
+            break
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            return None
+        coefficients.append(float(value))
+    return coefficients or None
+
+
+def _b0_at_mjd(mjd: np.ndarray) -> np.ndarray:
+    from astropy.time import Time
+    from sunpy.coordinates.sun import B0
+
+    from ._header import quiet_time_warnings
+
+    with quiet_time_warnings():
+        return np.atleast_1d(B0(Time(np.asarray(mjd, dtype=float), format="mjd", scale="utc")).to_value("deg"))
+
+
+@functools.lru_cache(maxsize=256)
+def _rotation_b0_nodes(rotation: int) -> tuple[np.ndarray, np.ndarray]:
+    """B0 (deg) at _NODES fractions of Carrington rotation ``rotation``, from its start to its end."""
+    from sunpy.coordinates.sun import carrington_rotation_time
+
+    from ._header import quiet_time_warnings
+
+    fractions = np.linspace(0.0, 1.0, _NODES)
+    with quiet_time_warnings():
+        ends = carrington_rotation_time(np.array([rotation, rotation + 1.0])).utc.mjd
+    # the synodic rate changes by under 0.2 % within one rotation: time is linear in the fraction to
+    # about 0.03 day, which moves B0 by under 0.005 degree
+    mjd = ends[0] + fractions * (ends[1] - ends[0])
+    return fractions, _b0_at_mjd(mjd)
+
+
+def column_b0(header: Mapping, lon: np.ndarray, rotation: int | None, time, source: str = "map"):
+    """Each column's B0 angle (degrees) and a sentence saying where it came from.
+
+    Parameters
+    ----------
+    header : mapping
+        The map's header keywords (upper case).
+    lon : array
+        Carrington longitude of each column's centre, degrees.
+    rotation : int or None
+        The map's Carrington rotation number.
+    time : astropy.time.Time or None
+        The map's time.
+    source : str
+        The file, for messages.
+
+    Returns
+    -------
+    b0 : ndarray, shape (nlon,)
+    how : str
+        For example "per column, from the column times (TCOLk) through sunpy.coordinates.sun.B0".
+    """
+    lon = np.asarray(lon, dtype=float) % 360.0
+    x = (lon - 180.0) / 180.0
+    coefficients = _polynomial(header, "B0COL")
+    if coefficients is not None:
+        return np.polynomial.polynomial.polyval(x, coefficients), "per column, from the header's B0COLk polynomial"
+    coefficients = _polynomial(header, "TCOL")
+    if coefficients is not None:
+        mjd = np.polynomial.polynomial.polyval(x, coefficients)
+        if np.all(np.isfinite(mjd)) and np.all((mjd > -100_000) & (mjd < 500_000)):
+            nodes = np.linspace(mjd.min(), mjd.max(), _NODES)
+            return (np.interp(mjd, nodes, _b0_at_mjd(nodes)),
+                    "per column, from the header's column times (TCOLk) through sunpy.coordinates.sun.B0")
+    if rotation is not None:
+        try:
+            fractions, b0 = _rotation_b0_nodes(int(rotation))
+        except Exception as exc:  # ERFA refuses dates it cannot represent
+            raise MapFormatError(f"{source}: rotation {rotation} gives no usable date for B0 ({exc})") from None
+        return (np.interp(1.0 - lon / 360.0, fractions, b0),
+                f"per column, from each column's central-meridian time in rotation {rotation} "
+                "through sunpy.coordinates.sun.B0")
+    value = header.get("CRLT_OBS")
+    if isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value) and abs(value) <= 8:
+        return np.full(lon.shape, float(value)), "one value for the map, from CRLT_OBS"
+    if time is not None:
+        return (np.full(lon.shape, float(_b0_at_mjd(np.array([time.utc.mjd]))[0])),
+                "one value for the map, B0 at the map's time through sunpy.coordinates.sun.B0")
+    raise MapFormatError(f"{source}: line-of-sight map with no way to know B0: no B0COLk, TCOLk, Carrington "
+                         "rotation, CRLT_OBS or map time in its header")
+
+
+def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_factor: float = LOS_MAX_FACTOR,
+                  block_rows: int = 64) -> None:
+    """Divide line-of-sight field by cos(latitude - B0), in place, the factor capped at ``max_factor``.
+
+    ``values`` is (nlat, nlon) float64, ``lat`` the row latitudes and ``b0`` the
+    column B0 angles, both in degrees. Works in blocks of rows, so the factor
+    array never takes the map's whole size.
+    """
+    if not max_factor >= 1.0:
+        raise ValueError(f"max_factor must be at least 1, got {max_factor}")
+    floor = 1.0 / max_factor
+    b0_rad = np.deg2rad(np.asarray(b0, dtype=float))[None, :]
+    lat_rad = np.deg2rad(np.asarray(lat, dtype=float))
+    for start in range(0, values.shape[0], block_rows):
+        rows = slice(start, start + block_rows)
+        cosine = np.cos(lat_rad[rows, None] - b0_rad)
+        values[rows] /= np.maximum(cosine, floor)

@@ -1,0 +1,124 @@
+"""Line-of-sight maps: each column's B0 and the conversion to radial field.
+
+References: the analytic projection of a radial field onto the line of sight,
+B_los = B_r cos(latitude - B0) for a pixel at central meridian (spherical geometry,
+common practice for synoptic maps built from central-meridian data); B0 and the
+Carrington rotation times from ``sunpy.coordinates.sun`` (a general reference
+library, computed here independently of polarflux's own interpolation).
+"""
+
+import numpy as np
+import pytest
+from astropy.time import Time
+from conftest import cea_header, write_fits
+from sunpy.coordinates.sun import B0, carrington_rotation_time
+
+import polarflux as pf
+from polarflux.los import column_b0
+
+
+def sin8_field(lat_deg, amplitude=10.0):
+    """A polar field of 10 G sin^8(latitude) in the north, -10 G in the south (odd in latitude)."""
+    s = np.sin(np.deg2rad(lat_deg))
+    return amplitude * np.sign(s) * s**8
+
+
+def los_map(tmp_path, name, b0_columns, limb=None, **keys):
+    """The analytic line-of-sight map of sin8_field with B0 per column; beyond ``limb`` blank."""
+    m = pf.SynopticMap.from_array(np.zeros((360, 720)))
+    lat = m.lat[:, None]
+    los = sin8_field(lat) * np.cos(np.deg2rad(lat - b0_columns[None, :]))
+    if limb is not None:
+        los[np.abs(lat - b0_columns[None, :]) > limb] = np.nan
+    return write_fits(tmp_path / name, los.astype(np.float64), cea_header(360, 720, **keys)), m
+
+
+def cap_mean_truth(amplitude=10.0, cap=60.0):
+    """Closed form: mean of amplitude sin^8 over the cap = amplitude (1 - s0^9) / (9 (1 - s0))."""
+    s0 = np.sin(np.deg2rad(cap))
+    return amplitude * (1 - s0**9) / (9 * (1 - s0))
+
+
+@pytest.mark.parametrize("b0", [7.25, -7.25, 3.0])
+def test_radial_field_comes_back_from_its_projection_at_any_b0(tmp_path, b0):
+    # blank beyond 84 degrees from the disk centre, where the factor (9.6) is still below its cap
+    path, m = los_map(tmp_path, "los.fits", np.full(720, b0), limb=84.0, B0COL0=b0)
+    got = pf.read_map(path, field="los")
+    seen = np.isfinite(got.br)
+    truth = sin8_field(m.lat)[:, None] * np.ones(720)
+    np.testing.assert_allclose(got.br[seen], truth[seen], atol=1e-9)
+    assert seen.mean() > 0.9
+    if abs(b0) > 6.0:
+        # the pole tilted towards the observer is seen whole: its cap mean is the closed form's
+        toward = pf.measure_caps(got)["north" if b0 > 0 else "south"]
+        assert toward.coverage == 1.0
+        # (pixel-centre samples of sin^8 on 360 rows: within 1e-3 of the cell averages)
+        assert abs(toward.mean_field.value) == pytest.approx(cap_mean_truth(), rel=1e-3)
+
+
+def test_dividing_by_cos_latitude_alone_would_be_far_off(tmp_path):
+    # the issue's numbers: 1.47x the truth at B0 = +7.25 (north) with 1/cos(latitude)
+    path, m = los_map(tmp_path, "los.fits", np.full(720, 7.25), B0COL0=7.25)
+    raw = pf.read_map(path).br
+    old = raw / np.maximum(np.cos(np.deg2rad(m.lat)), 0.1)[:, None]
+    old_mean = pf.measure_caps(pf.SynopticMap.from_array(old)).north.mean_field.value
+    new_mean = pf.measure_caps(pf.read_map(path, field="los")).north.mean_field.value
+    assert old_mean / cap_mean_truth() > 1.3
+    assert abs(new_mean / cap_mean_truth() - 1) < 0.01
+
+
+def test_b0_per_column_from_the_rotation_number_matches_sunpy(tmp_path):
+    # no B0 keywords: each column's central-meridian time in rotation 2200 (sunpy: the column at
+    # longitude L crosses at rotation number N + 1 - L / 360), then sunpy's B0 at that time
+    path, m = los_map(tmp_path, "los.fits", np.zeros(720), CAR_ROT=2200, **{"DATE-OBS": "2018-02-10T00:00:00"})
+    got = pf.read_map(path, field="los")
+    assert "rotation 2200" in got.los_b0_how
+    cols = np.arange(0, 720, 37)
+    times = carrington_rotation_time(2200 + 1 - m.lon[cols] / 360.0)
+    expected = B0(times).to_value("deg")
+    np.testing.assert_allclose(got.los_b0[cols], expected, atol=0.01)
+    assert np.ptp(got.los_b0) > 0.3  # B0 changes across the rotation: one value would not do
+
+
+def test_b0_from_column_times(tmp_path):
+    # TCOLk: column time as MJD polynomial in x = (CRLN - 180) / 180 (linear here)
+    start = Time("2031-03-01T00:00:00", scale="utc").mjd
+    keys = {"TCOL0": start + 13.6, "TCOL1": -13.6}
+    path, m = los_map(tmp_path, "los.fits", np.zeros(720), **keys)
+    got = pf.read_map(path, field="los")
+    assert "TCOLk" in got.los_b0_how
+    mjd = start + 13.6 - 13.6 * (m.lon - 180) / 180
+    cols = np.arange(5, 720, 50)
+    expected = B0(Time(mjd[cols], format="mjd", scale="utc")).to_value("deg")
+    np.testing.assert_allclose(got.los_b0[cols], expected, atol=0.005)
+
+
+def test_varying_b0_columns_and_a_hidden_pole(tmp_path):
+    # B0 from -7 to -4 across the map: the north pole is hidden beyond the limb; what is seen is exact
+    b0 = np.linspace(-7.0, -4.0, 720)
+    x = (pf.SynopticMap.from_array(np.zeros((2, 720))).lon - 180) / 180
+    coefficients = np.polynomial.polynomial.polyfit(x, b0, 1)
+    path, m = los_map(tmp_path, "los.fits", b0, limb=82.0, B0COL0=coefficients[0], B0COL1=coefficients[1])
+    got = pf.read_map(path, field="los")
+    np.testing.assert_allclose(got.los_b0, b0, atol=1e-9)
+    seen = np.isfinite(got.br)
+    truth = sin8_field(m.lat)[:, None] * np.ones(720)
+    np.testing.assert_allclose(got.br[seen], truth[seen], atol=1e-9)
+    assert not seen[-1].any()  # the pole itself is not seen
+
+
+def test_a_los_map_with_no_way_to_know_b0_is_refused(tmp_path):
+    header = cea_header(90, 180)
+    del header["CAR_ROT"], header["DATE-OBS"]
+    path = write_fits(tmp_path / "blind.fits", np.ones((90, 180), np.float32), header)
+    with pytest.raises(pf.MapFormatError, match="blind.fits.*B0"):
+        pf.read_map(path, field="los")
+
+
+def test_column_b0_prefers_the_header_polynomial():
+    lon = np.array([0.5, 180.0, 359.5])
+    b0, how = column_b0({"B0COL0": 1.0, "B0COL1": 2.0, "CRLT_OBS": 5.0}, lon, 2200, None)
+    np.testing.assert_allclose(b0, 1.0 + 2.0 * (lon - 180) / 180)
+    assert "B0COLk" in how
+    b0, how = column_b0({"CRLT_OBS": 5.0}, lon, None, None)
+    assert np.all(b0 == 5.0) and "CRLT_OBS" in how
