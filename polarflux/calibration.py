@@ -23,10 +23,13 @@ differ from the joint one by more than their uncertainties allow.
 Viewing correction
 ------------------
 Seen from near the ecliptic each pole is best seen once a year (B0 = +7.25 deg
-for the north, -7.25 deg for the south), so the polar measures swing with B0.
-The default correction regresses each hemisphere's deviation from its
-13-rotation running mean on B0 x that running mean (the part of the field lost
-scales with the field itself) and subtracts the fitted swing. Unlike a yearly
+for the north, -7.25 deg for the south), and hidden beyond the limb in part
+while it is tilted away: the loss is one-sided. The default correction models
+the measured value as true x (1 + c a), a = max(0, -B0 towards that pole) in
+degrees, fits c from each hemisphere's deviations from its 13-rotation running
+mean (which holds the year's mean loss, so both the swing and the mean shortfall
+are removed), and divides the measures by 1 + c a. A record whose unseen pole
+was filled (``fill="temporal"`` or ``"profile"``) has little left to remove. Unlike a yearly
 running mean it keeps the time resolution of the record, which matters near a
 reversal. ``viewing="annual"`` uses the 13-rotation running mean instead, and
 ``viewing="none"`` leaves the measures as they are. B0 comes from
@@ -262,13 +265,19 @@ def _viewing_correction(mean: np.ndarray, flux: np.ndarray, b0: np.ndarray, view
             out_mean[:, j] = trend
             out_flux[:, j] = running_mean(flux[:, j], 13, RECORD_MIN_COUNT)
             continue
-        regressor = b0 * trend
+        # only the pole tilted away from the observer loses flux (beyond the limb): the measured value
+        # is true x (1 + c a), a = max(0, -B0 towards this pole); the 13-rotation trend holds the
+        # year's mean loss too, true x (1 + c a_mean), so the deviation from it is
+        # trend x c' (a - a_mean) with c' = c / (1 + c a_mean)
+        away = np.maximum(0.0, -b0 if hemisphere == "north" else b0)
+        away_mean = running_mean(away, 13, RECORD_MIN_COUNT)
+        regressor = trend * (away - away_mean)
         good = np.isfinite(regressor) & np.isfinite(mean[:, j])
-        c = float(np.sum(regressor[good] * (mean[good, j] - trend[good])) / np.sum(regressor[good] ** 2)) \
-            if good.sum() > 3 else 0.0
+        slope = float(np.sum(regressor[good] * (mean[good, j] - trend[good])) / np.sum(regressor[good] ** 2)) \
+            if good.sum() > 3 and np.sum(regressor[good] ** 2) > 0 else 0.0
+        c = slope / (1.0 - slope * float(np.nanmean(away_mean)))
         coefficients[hemisphere] = c
-        # the measured value is trend x (1 + c B0): divide the swing out (where the trend is unknown too)
-        ratio = 1.0 + c * b0
+        ratio = np.maximum(1.0 + c * away, 0.2)  # never more than five-fold
         out_mean[:, j] = mean[:, j] / ratio
         out_flux[:, j] = flux[:, j] / ratio
     return out_mean, out_flux, coefficients

@@ -441,6 +441,10 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         as_of_year = float(to_decimal_year(np.array([as_of], dtype="datetime64[ns]"))[0][0])
     as_of_ns = from_decimal_year(np.array([as_of_year]), True)[0]
     past = record.isel(time=np.flatnonzero(record["time"].values.astype("datetime64[ns]") <= as_of_ns))
+    if past.sizes["time"] < record.sizes["time"]:
+        from .record import refill
+
+        past = refill(past)  # a temporal fill from the maps before as_of alone
     if past.sizes["time"] < 13:
         raise SettingsError("the record before the forecast date is shorter than a year")
     keep = t_ssn <= as_of_year

@@ -108,10 +108,12 @@ def map_available(times) -> np.ndarray:
 
 
 def cut_record(record, date: float):
-    """The record entries whose rotation had ended on ``date`` (decimal year)."""
+    """The record entries whose rotation had ended on ``date`` (decimal year), their fill made from them alone."""
     date_ns = from_decimal_year(np.array([date]), True)[0]
     keep = np.flatnonzero(map_available(record["time"].values) <= date_ns)
-    return record.isel(time=keep)
+    from .record import refill
+
+    return refill(record.isel(time=keep))  # a temporal fill from the maps that existed then
 
 
 def sunspot_available(times) -> np.ndarray:

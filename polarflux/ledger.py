@@ -28,7 +28,7 @@ from .errors import PolarfluxError
 __all__ = ["Ledger", "default_ledger_path", "file_digest", "MEASURE_VERSION"]
 
 #: Bumped whenever the measurement itself changes, so old results are not reused.
-MEASURE_VERSION = 2  # 2: timeless maps refused, time from the FITS standard keywords
+MEASURE_VERSION = 3  # 2: timeless maps refused, time from the FITS standard keywords; 3: line-of-sight B0 per column, latitude bands and fill uncertainty
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS measurements (

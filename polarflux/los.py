@@ -44,7 +44,12 @@ import numpy as np
 
 from .errors import MapFormatError
 
-__all__ = ["column_b0", "los_to_radial", "LOS_MAX_FACTOR"]
+__all__ = ["column_b0", "los_to_radial", "convert_to_radial", "field_in_header", "FIELDS", "LOS_MAX_FACTOR"]
+
+#: What a map holds: "auto" reads the header (:func:`field_in_header`), "radial" and "los" say it.
+FIELDS = ("auto", "radial", "los")
+#: Header values of ``MAPFIELD`` (polarflux's keyword for what a map holds) meaning line of sight.
+_LOS_WORDS = ("LOS", "LINE-OF-SIGHT", "LINE OF SIGHT", "BLOS")
 
 #: Largest factor 1/cos(latitude - B0) applied when converting line-of-sight field to radial.
 #: 10 corresponds to 84.3 degrees from the disk centre; farther out the factor is held at 10.
@@ -144,19 +149,52 @@ def column_b0(header: Mapping, lon: np.ndarray, rotation: int | None, time, sour
 
 
 def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_factor: float = LOS_MAX_FACTOR,
-                  block_rows: int = 64) -> None:
+                  block_rows: int = 64, lat_edges: np.ndarray | None = None) -> None:
     """Divide line-of-sight field by cos(latitude - B0), in place, the factor capped at ``max_factor``.
 
     ``values`` is (nlat, nlon) float64, ``lat`` the row latitudes and ``b0`` the
-    column B0 angles, both in degrees. Works in blocks of rows, so the factor
-    array never takes the map's whole size.
+    column B0 angles, both in degrees. With ``lat_edges`` (nlat + 1, degrees) the
+    divisor is the area average of cos(latitude - B0) over each row,
+
+        <cos(phi - B0)> = [(sin(2b - B0) - sin(2a - B0)) / 4 + (b - a) cos(B0) / 2] / (sin b - sin a)
+
+    for a row from a to b: a row's value is the average of B_r cos(phi - B0) over
+    its area, so this is exact for a field uniform over the row, where the cosine at
+    the row's centre is not (the rows next to a pole of a coarse sine-latitude
+    grid span 10 degrees or more). Works in blocks of rows, so the factor array
+    never takes the map's whole size.
     """
     if not max_factor >= 1.0:
         raise ValueError(f"max_factor must be at least 1, got {max_factor}")
     floor = 1.0 / max_factor
     b0_rad = np.deg2rad(np.asarray(b0, dtype=float))[None, :]
     lat_rad = np.deg2rad(np.asarray(lat, dtype=float))
+    edges = None if lat_edges is None else np.deg2rad(np.asarray(lat_edges, dtype=float))
     for start in range(0, values.shape[0], block_rows):
         rows = slice(start, start + block_rows)
-        cosine = np.cos(lat_rad[rows, None] - b0_rad)
+        if edges is None:
+            cosine = np.cos(lat_rad[rows, None] - b0_rad)
+        else:
+            a = edges[:-1][rows, None]
+            b = edges[1:][rows, None]
+            cosine = ((np.sin(2 * b - b0_rad) - np.sin(2 * a - b0_rad)) / 4 + (b - a) * np.cos(b0_rad) / 2) \
+                / (np.sin(b) - np.sin(a))
         values[rows] /= np.maximum(cosine, floor)
+
+
+def field_in_header(header: Mapping) -> str:
+    """"los" when the header's ``MAPFIELD`` says line of sight ("LOS", "LINE-OF-SIGHT", "BLOS"), else "radial"."""
+    value = str(header.get("MAPFIELD", "") or "").strip().upper()
+    return "los" if value in _LOS_WORDS else "radial"
+
+
+def convert_to_radial(m, max_factor: float = LOS_MAX_FACTOR) -> None:
+    """Turn a map read as radial but holding line-of-sight field into radial field, in place.
+
+    Sets ``m.los_b0`` and ``m.los_b0_how`` (see :func:`column_b0`).
+    """
+    b0, how = column_b0(m.header, m.lon, m.carrington_rotation, m.time, m.source or "map")
+    values = m.br
+    los_to_radial(values, m.lat, b0, max_factor, lat_edges=m.lat_edges)
+    m.br = values
+    m.los_b0, m.los_b0_how = b0, how

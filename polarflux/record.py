@@ -21,9 +21,11 @@ import numpy as np
 from ._io import atomic_path
 from ._version import __version__
 from .errors import MapFormatError, PolarfluxError, SettingsError
+from .fill import DEFAULT_FILL, RECORD_FILLS, band_edges, band_fill_error, cap_bands, temporal_fill
 from .geometry import HEMISPHERES, as_degrees
+from .los import FIELDS, convert_to_radial, field_in_header
 from .maps import quiet_time_warnings, read_map
-from .measure import FILL_METHODS, axial_dipole, measure_caps
+from .measure import axial_dipole, measure_caps
 
 __all__ = [
     "CSV_COLUMNS",
@@ -36,6 +38,7 @@ __all__ = [
     "measure_with_ledger",
     "available_cores",
     "rows_to_dataset",
+    "refill",
     "write_record",
     "read_record",
 ]
@@ -57,7 +60,15 @@ CSV_COLUMNS = (
     "south_mean_field_g",
     "south_coverage",
     "axial_dipole_g",
+    "north_fill_error_g",
+    "south_fill_error_g",
+    "field",
+    "fill",
 )
+#: Columns holding numbers (the rest are text).
+NUMERIC_COLUMNS = tuple(c for c in CSV_COLUMNS[5:] if c not in ("field", "fill"))
+#: Columns a record written before the fill uncertainty may lack (read as NaN or unknown).
+_OPTIONAL_COLUMNS = ("north_fill_error_g", "south_fill_error_g", "field", "fill")
 
 # Dataset variable -> (CSV column suffix, units, long name)
 _CAP_VARIABLES = {
@@ -65,6 +76,7 @@ _CAP_VARIABLES = {
     "unsigned_flux": ("unsigned_flux_mx", "Mx", "unsigned magnetic flux poleward of the cap latitude"),
     "mean_field": ("mean_field_g", "G", "mean radial field of the polar cap (signed flux / cap area)"),
     "coverage": ("coverage", "1", "fraction of the polar cap area with observed data"),
+    "fill_error": ("fill_error_g", "G", "uncertainty of the cap mean field from the fill of its unseen part"),
 }
 
 
@@ -125,15 +137,24 @@ def expand_inputs(inputs: Iterable[str | os.PathLike]) -> tuple[list[str], list[
     return files, problems
 
 
-def measure_file(path: str, cap_latitude: float = 60.0, fill: str = "none", field: str = "radial") -> dict:
-    """Read and measure one map; return one record row (the CSV columns)."""
-    m = read_map(path, field=field)
+def measure_file(path: str, cap_latitude: float = 60.0, fill: str = DEFAULT_FILL, field: str = "auto") -> dict:
+    """Read and measure one map; return one record row (the CSV columns, and the cap's latitude bands).
+
+    ``fill="temporal"`` needs the record: the row holds the unfilled measures and
+    the bands (:func:`polarflux.fill.cap_bands`) that :func:`rows_to_dataset` fills from.
+    ``field="auto"`` reads line-of-sight field where the header says so
+    (:func:`polarflux.los.field_in_header`), else radial field.
+    """
+    m = read_map(path, field="radial" if field == "auto" else field)
+    if field == "auto" and field_in_header(m.header) == "los":
+        convert_to_radial(m)
     if m.time is None:
         from ._header import TIME_KEYS
 
         raise MapFormatError(f"{path}: the map has no time: none of {', '.join(TIME_KEYS)} nor a Carrington "
                              "rotation number (CAR_ROT) in its header; a record needs each map's time")
-    caps = measure_caps(m, cap_latitude=cap_latitude, fill=fill)
+    map_fill = "none" if fill == "temporal" else fill
+    caps = measure_caps(m, cap_latitude=cap_latitude, fill=map_fill)
     with quiet_time_warnings():
         time = None if m.time is None else m.time.utc.isot
     row = {
@@ -149,7 +170,14 @@ def measure_file(path: str, cap_latitude: float = 60.0, fill: str = "none", fiel
         row[f"{hemisphere}_unsigned_flux_mx"] = cap.unsigned_flux.to_value("Mx")
         row[f"{hemisphere}_mean_field_g"] = cap.mean_field.to_value("G")
         row[f"{hemisphere}_coverage"] = cap.coverage
-    row["axial_dipole_g"] = axial_dipole(m, fill=fill, cap_latitude=cap_latitude).to_value("G")
+    row["axial_dipole_g"] = axial_dipole(m, fill=map_fill, cap_latitude=cap_latitude).to_value("G")
+    row.update(cap_bands(m, caps.cap_latitude))
+    for hemisphere in HEMISPHERES:
+        row[f"{hemisphere}_fill_error_g"] = (float("nan") if fill == "temporal"
+                                            else band_fill_error(row, caps.cap_latitude, fill, hemisphere))
+    row["field"] = "los" if m.los_b0 is not None else "radial"
+    row["fill"] = fill
+    row["b0_how"] = m.los_b0_how
     return row
 
 
@@ -167,10 +195,10 @@ def _check_settings(cap_latitude, fill: str, field: str, jobs: int) -> float:
     cap = as_degrees(cap_latitude, "cap_latitude")
     if not 0.0 < cap < 90.0:
         raise SettingsError(f"cap latitude {cap} must lie strictly between 0 and 90 degrees")
-    if fill not in FILL_METHODS:
-        raise SettingsError(f"fill={fill!r} is not one of {FILL_METHODS}")
-    if field not in ("radial", "los"):
-        raise SettingsError(f"field={field!r} is not 'radial' or 'los'")
+    if fill not in RECORD_FILLS:
+        raise SettingsError(f"fill={fill!r} is not one of {RECORD_FILLS}")
+    if field not in FIELDS:
+        raise SettingsError(f"field={field!r} is not one of {FIELDS}")
     if int(jobs) < 1:
         raise SettingsError(f"jobs={jobs} must be at least 1")
     return cap
@@ -240,8 +268,8 @@ def _dispatch_dask(work: list[tuple], jobs: int, address: str):
 def iter_measurements(
     paths: Iterable[str],
     cap_latitude=60,
-    fill: str = "none",
-    field: str = "radial",
+    fill: str = DEFAULT_FILL,
+    field: str = "auto",
     jobs: int = 1,
     dask: str | None = None,
 ) -> Iterator[tuple[str, dict | None, str | None]]:
@@ -267,7 +295,7 @@ class LedgerRun:
     new_failures: int
 
 
-def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = "none", field: str = "radial",
+def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = DEFAULT_FILL, field: str = "auto",
                         jobs: int = 1, dask: str | None = None, on_result=None,
                         retry_failed: bool = False) -> LedgerRun:
     """Measure the files the ledger does not know yet, commit each result, and return every input's row.
@@ -338,8 +366,8 @@ def measure_archive(
     paths: Iterable[str | os.PathLike],
     cap_latitude=60,
     jobs: int = 1,
-    fill: str = "none",
-    field: str = "radial",
+    fill: str = DEFAULT_FILL,
+    field: str = "auto",
     progress: Callable[[str, str | None], None] | None = None,
     ledger=None,
     dask: str | None = None,
@@ -397,7 +425,11 @@ def measure_archive(
 
 
 def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, failures: Iterable[Failure] = ()):
-    """Build the record Dataset from measurement rows (the CSV columns)."""
+    """Build the record Dataset from measurement rows (the CSV columns).
+
+    With ``fill="temporal"`` the rows' unseen polar bands are filled here, from the
+    record (:func:`polarflux.fill.temporal_fill`, per instrument and hemisphere).
+    """
     import xarray as xr
 
     def sort_key(row: dict):
@@ -408,10 +440,11 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         [np.datetime64(r["time"], "ns") if r["time"] else np.datetime64("NaT", "ns") for r in rows],
         dtype="datetime64[ns]",
     )
+    has_bands = bool(rows) and all("north_band_mean_g" in r for r in rows)
     data_vars = {}
     for name, (suffix, units, long_name) in _CAP_VARIABLES.items():
         values = np.array(
-            [[r[f"{h}_{suffix}"] for h in HEMISPHERES] for r in rows], dtype=np.float64
+            [[r.get(f"{h}_{suffix}", np.nan) for h in HEMISPHERES] for r in rows], dtype=np.float64
         ).reshape(len(rows), len(HEMISPHERES))
         data_vars[name] = (("time", "hemisphere"), values, {"units": units, "long_name": long_name})
     data_vars["axial_dipole"] = (
@@ -419,6 +452,15 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         np.array([r["axial_dipole_g"] for r in rows], dtype=np.float64),
         {"units": "G", "long_name": "axial dipole moment (3/4pi) integral of Br sin(latitude) dOmega"},
     )
+    if has_bands:
+        edges = band_edges(float(cap_deg))
+        for name, key, units, long_name in (
+                ("band_mean_field", "band_mean_g", "G", "mean field of the seen part of each latitude band"),
+                ("band_abs_field", "band_abs_g", "G", "mean |field| of the seen part of each latitude band"),
+                ("band_coverage", "band_coverage", "1", "fraction of each latitude band with observed data")):
+            values = np.array([[r[f"{h}_{key}"] for h in HEMISPHERES] for r in rows], dtype=np.float64)
+            data_vars[name] = (("time", "hemisphere", "band"), values.reshape(len(rows), 2, edges.size - 1),
+                               {"units": units, "long_name": long_name})
     data_vars["carrington_rotation"] = (
         ("time",),
         np.array([-1 if r["carrington_rotation"] is None else int(r["carrington_rotation"]) for r in rows],
@@ -429,27 +471,89 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
                            {"long_name": "input file"})
     data_vars["instrument"] = (("time",), np.array([r["instrument"] for r in rows], dtype=str),
                                {"long_name": "instrument"})
+    data_vars["map_field"] = (("time",), np.array([r.get("field") or "" for r in rows], dtype=str),
+                              {"long_name": "what the map held: radial or line-of-sight (los) field"})
+    fills_used = sorted({r.get("fill") or "" for r in rows} - {""})
+    fill = fill or (fills_used[0] if len(fills_used) == 1 else "")
+    fields_used = sorted({r.get("field") or "" for r in rows} - {""})
     failures = list(failures)
     attrs = {
         "title": "polar-cap magnetic flux record",
         "cap_deg": float(cap_deg),
         "fill": fill,
-        "field": field,
+        "fill_uncertainty": FILL_UNCERTAINTY.get(fill, ""),
+        "field": field if field and field != "auto" else "+".join(fields_used) or field,
+        "b0_used": "; ".join(sorted({r.get("b0_how") or "" for r in rows} - {""})),
         "failed_count": len(failures),
         "failures": "\n".join(str(f) for f in failures),
         "duplicate_count": len(duplicates),
         "duplicates": "\n".join(duplicates),
         "created_by": f"polarflux {__version__}",
     }
-    ds = xr.Dataset(
-        data_vars,
-        coords={
-            "time": ("time", times, {"long_name": "map time (UTC)"}),
-            "hemisphere": ("hemisphere", np.array(HEMISPHERES, dtype=str)),
-        },
-        attrs=attrs,
-    )
+    coords = {
+        "time": ("time", times, {"long_name": "map time (UTC)"}),
+        "hemisphere": ("hemisphere", np.array(HEMISPHERES, dtype=str)),
+    }
+    if has_bands:
+        coords["band"] = ("band", band_edges(float(cap_deg))[:-1],
+                          {"units": "deg", "long_name": "|latitude| of the band's equatorward edge"})
+    ds = xr.Dataset(data_vars, coords=coords, attrs=attrs)
+    if fill == "temporal" and has_bands:
+        ds = refill(ds)
     return ds
+
+
+def refill(record):
+    """The record with its temporal fill made again from its own entries (a new Dataset).
+
+    The temporal fill of a map uses the well-seen maps before and after it; a record
+    cut at a date must be filled again from what existed then, or it would use maps
+    from after the cut. Records without the latitude bands, or with another fill, come
+    back unchanged.
+    """
+    if record.attrs.get("fill") != "temporal" or "band_mean_field" not in record:
+        return record
+    from .geometry import spherical_cap_area
+    from .timeseries import to_decimal_year
+
+    ds = record.copy(deep=True)
+    cap = float(ds.attrs["cap_deg"])
+    area = spherical_cap_area(cap)
+    n = ds.sizes["time"]
+    old = ds["fill_added"].values if "fill_added" in ds else np.zeros((n, 2))
+    old_abs = ds["fill_added_abs"].values if "fill_added_abs" in ds else np.zeros((n, 2))
+    old_dipole = ds["fill_added_dipole"].values if "fill_added_dipole" in ds else np.zeros(n)
+    added, added_abs, dipole = np.zeros((n, 2)), np.zeros((n, 2)), np.zeros(n)
+    error = np.full((n, 2), np.nan)
+    t, _ = to_decimal_year(ds["time"].values)
+    instruments = ds["instrument"].values.astype(str)
+    for name in np.unique(instruments):
+        idx = np.flatnonzero((instruments == name) & np.isfinite(t))
+        for j, sign in ((0, 1.0), (1, -1.0)):
+            result = temporal_fill(t[idx], ds["band_mean_field"].values[idx, j], ds["band_coverage"].values[idx, j],
+                                   cap, abs_mean=ds["band_abs_field"].values[idx, j])
+            added[idx, j] = np.nan_to_num(result["mean_added"])
+            added_abs[idx, j] = np.nan_to_num(result["abs_added"])
+            dipole[idx] += sign * result["dipole_added"]
+            error[idx, j] = result["error"]
+    ds["mean_field"].values[:] = ds["mean_field"].values - old + added
+    ds["signed_flux"].values[:] = ds["signed_flux"].values + (added - old) * area
+    ds["unsigned_flux"].values[:] = ds["unsigned_flux"].values + (added_abs - old_abs) * area
+    ds["axial_dipole"].values[:] = ds["axial_dipole"].values + dipole - old_dipole
+    ds["fill_error"].values[:] = error
+    ds["fill_added"] = (("time", "hemisphere"), added, {"units": "G", "long_name": "cap mean field added by the fill"})
+    ds["fill_added_abs"] = (("time", "hemisphere"), added_abs,
+                            {"units": "G", "long_name": "cap mean |field| added by the fill"})
+    ds["fill_added_dipole"] = (("time",), dipole, {"units": "G", "long_name": "axial dipole added by the fill"})
+    return ds
+
+
+#: What the fill uncertainty column means, by fill (see polarflux.fill).
+FILL_UNCERTAINTY = {
+    "none": "unseen area x mean field of the most poleward band seen",
+    "profile": "half the difference of profile fills with sin^4 and sin^12",
+    "temporal": "half the band's change between well-seen maps, plus its map-to-map noise",
+}
 
 
 def _drop_duplicates(rows: list[dict]) -> tuple[list[dict], list[str]]:
@@ -459,7 +563,7 @@ def _drop_duplicates(rows: list[dict]) -> tuple[list[dict], list[str]]:
     notes = []
     for row in rows:
         key = (row["instrument"], row["carrington_rotation"], row["time"],
-               *(repr(float(row[c])) for c in CSV_COLUMNS[5:]))
+               *(repr(float(row.get(c, np.nan))) for c in NUMERIC_COLUMNS[:9]))
         if key in kept:
             notes.append(f"{row['source']}: the same map as {kept[key]['source']}; measured once")
         else:
@@ -482,6 +586,8 @@ def _dataset_rows(ds) -> Iterator[dict]:
             for j, hemisphere in enumerate(HEMISPHERES):
                 row[f"{hemisphere}_{suffix}"] = repr(float(ds[name].values[i, j]))
         row["axial_dipole_g"] = repr(float(ds["axial_dipole"].values[i]))
+        row["field"] = str(ds["map_field"].values[i]) if "map_field" in ds else str(ds.attrs.get("field", ""))
+        row["fill"] = str(ds.attrs.get("fill", ""))
         yield row
 
 
@@ -529,7 +635,7 @@ def read_record(path: str | os.PathLike):
     try:
         with open(path, newline="", encoding="utf-8-sig") as handle:
             reader = csv.DictReader(handle)
-            missing = [c for c in CSV_COLUMNS if c not in (reader.fieldnames or ())]
+            missing = [c for c in CSV_COLUMNS if c not in (reader.fieldnames or ()) and c not in _OPTIONAL_COLUMNS]
             if missing:
                 raise PolarfluxError(f"{path}: not a polarflux record; missing columns {', '.join(missing)}")
             raw = list(reader)
@@ -543,8 +649,9 @@ def read_record(path: str | os.PathLike):
             row["time"] = r["time"] or None
             if row["time"] is not None:
                 np.datetime64(row["time"], "ns")
-            for column in CSV_COLUMNS[5:]:
-                row[column] = float(r[column])
+            for column in NUMERIC_COLUMNS:
+                row[column] = float(r[column]) if r.get(column) not in (None, "") else float("nan")
+            row["field"], row["fill"] = r.get("field") or "", r.get("fill") or ""
         except (ValueError, TypeError):
             raise PolarfluxError(f"{path}: line {line}: not a valid record row (a number or time cannot be "
                                  "read)") from None

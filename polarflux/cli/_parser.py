@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 
 from .._version import __version__
-from ..measure import FILL_METHODS
+from ..fill import DEFAULT_FILL, RECORD_FILLS
+from ..los import FIELDS
 
 __all__ = ["build_parser", "command_reference"]
 
@@ -192,11 +193,13 @@ def _add_scenario_options(parser: argparse.ArgumentParser) -> None:
 def _add_measure_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--cap", type=float, default=60.0, metavar="DEG",
                         help="cap boundary latitude in degrees (default: 60)")
-    parser.add_argument("--fill", choices=FILL_METHODS, default="none",
-                        help="missing polar pixels: 'none' integrates what is observed, "
-                        "'profile' fills them from the observed latitude profile (default: none)")
-    parser.add_argument("--field", choices=("radial", "los"), default="radial",
-                        help="the maps hold radial or line-of-sight field (default: radial)")
+    parser.add_argument("--fill", choices=RECORD_FILLS, default=DEFAULT_FILL,
+                        help="the unseen part of the polar caps: 'none' integrates what is observed, "
+                        "'profile' fills it from each map's latitude profile, 'temporal' from the same "
+                        f"instrument's maps where it was well seen, interpolated in time (default: {DEFAULT_FILL})")
+    parser.add_argument("--field", choices=FIELDS, default="auto",
+                        help="the maps hold radial or line-of-sight (los) field; 'auto' reads line of sight where "
+                        "the header says MAPFIELD = 'LOS' (default: auto)")
     from ..record import available_cores
 
     parser.add_argument("--jobs", type=int, default=available_cores(), metavar="N",
