@@ -189,6 +189,7 @@ def merge_instruments(record, reference: str | None = None, per_band: bool = Fal
             scale_cap[rows, :] = f.factor
     mean = record["mean_field"].values * scale_cap
     flux = record["signed_flux"].values * scale_cap
+    fill_error = (record["fill_error"].values if "fill_error" in record else np.full(mean.shape, np.nan)) * scale_cap
     dipole = record["axial_dipole"].values * scale_dipole
 
     # one entry per rotation: the mean over the instruments that measured it
@@ -204,7 +205,7 @@ def merge_instruments(record, reference: str | None = None, per_band: bool = Fal
     t = np.array([times[inverse == k].astype("datetime64[ns]").astype(np.int64).mean() for k in range(unique.size)])
     t = t.astype("datetime64[ns]")
     order = np.argsort(t)
-    mean_r, flux_r, dipole_r = (per_rotation(v)[order] for v in (mean, flux, dipole))
+    mean_r, flux_r, dipole_r, fill_r = (per_rotation(v)[order] for v in (mean, flux, dipole, fill_error))
     t = t[order]
     rotation_numbers = unique[order]
     counts = counts[order]
@@ -221,7 +222,7 @@ def merge_instruments(record, reference: str | None = None, per_band: bool = Fal
             period = np.median(np.diff(t[known].astype(np.int64)) / np.diff(rotation_numbers[known]))
             t_full = (t[known][0].astype(np.int64) + (full - full[0]) * period).astype("datetime64[ns]")
             t_full[where] = t[known]
-            mean_r, flux_r, dipole_r = spread(mean_r), spread(flux_r), spread(dipole_r)
+            mean_r, flux_r, dipole_r, fill_r = spread(mean_r), spread(flux_r), spread(dipole_r), spread(fill_r)
             grown_counts = np.zeros(full.size, dtype=np.int64)
             grown_counts[where] = counts[known]
             t, rotation_numbers, counts = t_full, full, grown_counts
@@ -236,6 +237,7 @@ def merge_instruments(record, reference: str | None = None, per_band: bool = Fal
                                        for i in {f.instrument for f in factors})),
         "per_band": int(per_band),
         "viewing_correction": viewing,
+        "fill": str(record.attrs.get("fill", "")),
         "b0_coefficients": json.dumps(coefficients),
         "calibration_method": "Deming regression through the origin (equal error variances), bootstrap errors",
     })
@@ -247,6 +249,9 @@ def merge_instruments(record, reference: str | None = None, per_band: bool = Fal
         "signed_flux_corrected": (("time", "hemisphere"), corrected_flux,
                                   {"units": "Mx", "long_name": f"signed flux, viewing correction {viewing}"}),
         "axial_dipole": (("time",), dipole_r, {"units": "G", "long_name": "axial dipole, reference scale"}),
+        "fill_error": (("time", "hemisphere"), fill_r,
+                       {"units": "G", "long_name": "uncertainty of the cap mean field from the fill of its unseen part, "
+                        "reference scale (NaN: not known)"}),
         "b0": (("time",), b0, {"units": "deg", "long_name": "heliographic latitude of the observer (B0)"}),
         "instruments": (("time",), counts, {"long_name": "instruments that measured the rotation (0: missing)"}),
         "carrington_rotation": (("time",), rotation_numbers, {"long_name": "Carrington rotation number"}),

@@ -270,6 +270,7 @@ def record_events(record, sunspot_times=None, sunspot_values=None, variable: str
     dipole = running_mean(record["axial_dipole"].values, smoothing, need)
     out = {
         "variable": variable,
+        "fill": str(record.attrs.get("fill", "")),
         "smoothing_entries": smoothing,
         "reversals": {h: [vars(r) for r in rs] for h, rs in reversals.items()},
         "reversal_lags": _lags(reversals),
@@ -289,8 +290,13 @@ def record_events(record, sunspot_times=None, sunspot_values=None, variable: str
             if not np.isfinite(north) and not np.isfinite(south):
                 continue  # the smoothed record does not reach this minimum (its first or last half-year)
             asym = (abs(north) - abs(south)) / (abs(north) + abs(south)) if np.isfinite(north + south) else math.nan
-            out["at_minima"].append({"time": float(when), "north": north, "south": south,
-                                     "axial_dipole": _interp(when, t, dipole), "asymmetry": asym})
+            entry = {"time": float(when), "north": north, "south": south,
+                     "axial_dipole": _interp(when, t, dipole), "asymmetry": asym}
+            if "fill_error" in record:  # the fill's uncertainty of the smoothed value: the maps' mean
+                for j, h in enumerate(("north", "south")):
+                    error = running_mean(record["fill_error"].values[:, j], smoothing, need)
+                    entry[f"{h}_fill_error"] = _interp(when, t, error)
+            out["at_minima"].append(entry)
     return out
 
 

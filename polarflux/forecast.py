@@ -362,6 +362,18 @@ def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed:
     }
 
 
+def _fill_relative_error(merged) -> float:
+    """The fill uncertainty of the latest year of the merged record, relative to its mean polar field."""
+    if "fill_error" not in merged:
+        return 0.0
+    error = merged["fill_error"].values[-13:].ravel()
+    field = np.abs(merged["mean_field"].values[-13:]).ravel()
+    good = np.isfinite(error) & np.isfinite(field)
+    if not good.any() or not np.mean(field[good]) > 0:
+        return 0.0
+    return float(min(np.mean(error[good]) / np.mean(field[good]), 1.0))
+
+
 def _latest_profile(record, merged, as_of_ns, bases=("",)):
     """Longitude-averaged field of the latest readable map at or before ``as_of``, on the reference scale."""
     import json
@@ -442,7 +454,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     as_of_ns = from_decimal_year(np.array([as_of_year]), True)[0]
     past = record.isel(time=np.flatnonzero(record["time"].values.astype("datetime64[ns]") <= as_of_ns))
     if past.sizes["time"] < record.sizes["time"]:
-        from .record import refill
+        from .fill import refill
 
         past = refill(past)  # a temporal fill from the maps before as_of alone
     if past.sizes["time"] < 13:
@@ -457,6 +469,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     latest = _latest_profile(past, merged, as_of_ns, bases)
+    fill_relative = 0.0
     if latest is not None:
         profile, edges, path, when, measured = latest
         now = float(to_decimal_year(np.array([when]))[0][0])
@@ -467,6 +480,11 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
         if model_now[proxy] > 0 and measured[proxy] > 0:
             projection[proxy] = np.abs(projection[proxy]) * (measured[proxy] / model_now[proxy])
+        # the anchor is only as good as the fill of the caps' unseen part: each member's scale is drawn
+        fill_relative = _fill_relative_error(merged)
+        if fill_relative > 0:
+            spread = np.random.default_rng(seed + 2).normal(0.0, fill_relative, np.size(projection[proxy]))
+            projection[proxy] = projection[proxy] * np.maximum(1.0 + spread, 0.1)
         projection_kind = f"transport ensemble from {path}, anchored to its measured {proxy}"
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
         values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
@@ -491,6 +509,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
             "loo_rms": fit.loo_rms,
         },
         "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
+                       "fill_relative_error": fill_relative,
                        "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"],
                        **{f"{name}_at_minimum": _summary(projection[name])
                           for name in ("north", "south", "axial_dipole") if name in projection}},

@@ -111,7 +111,7 @@ def cut_record(record, date: float):
     """The record entries whose rotation had ended on ``date`` (decimal year), their fill made from them alone."""
     date_ns = from_decimal_year(np.array([date]), True)[0]
     keep = np.flatnonzero(map_available(record["time"].values) <= date_ns)
-    from .record import refill
+    from .fill import refill
 
     return refill(record.isel(time=keep))  # a temporal fill from the maps that existed then
 

@@ -21,7 +21,7 @@ import numpy as np
 from ._io import atomic_path
 from ._version import __version__
 from .errors import MapFormatError, PolarfluxError, SettingsError
-from .fill import DEFAULT_FILL, RECORD_FILLS, band_edges, band_fill_error, cap_bands, temporal_fill
+from .fill import DEFAULT_FILL, RECORD_FILLS, band_edges, band_fill_error, cap_bands, refill
 from .geometry import HEMISPHERES, as_degrees
 from .los import FIELDS, convert_to_radial, field_in_header
 from .maps import quiet_time_warnings, read_map
@@ -38,7 +38,6 @@ __all__ = [
     "measure_with_ledger",
     "available_cores",
     "rows_to_dataset",
-    "refill",
     "write_record",
     "read_record",
 ]
@@ -500,51 +499,6 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
     ds = xr.Dataset(data_vars, coords=coords, attrs=attrs)
     if fill == "temporal" and has_bands:
         ds = refill(ds)
-    return ds
-
-
-def refill(record):
-    """The record with its temporal fill made again from its own entries (a new Dataset).
-
-    The temporal fill of a map uses the well-seen maps before and after it; a record
-    cut at a date must be filled again from what existed then, or it would use maps
-    from after the cut. Records without the latitude bands, or with another fill, come
-    back unchanged.
-    """
-    if record.attrs.get("fill") != "temporal" or "band_mean_field" not in record:
-        return record
-    from .geometry import spherical_cap_area
-    from .timeseries import to_decimal_year
-
-    ds = record.copy(deep=True)
-    cap = float(ds.attrs["cap_deg"])
-    area = spherical_cap_area(cap)
-    n = ds.sizes["time"]
-    old = ds["fill_added"].values if "fill_added" in ds else np.zeros((n, 2))
-    old_abs = ds["fill_added_abs"].values if "fill_added_abs" in ds else np.zeros((n, 2))
-    old_dipole = ds["fill_added_dipole"].values if "fill_added_dipole" in ds else np.zeros(n)
-    added, added_abs, dipole = np.zeros((n, 2)), np.zeros((n, 2)), np.zeros(n)
-    error = np.full((n, 2), np.nan)
-    t, _ = to_decimal_year(ds["time"].values)
-    instruments = ds["instrument"].values.astype(str)
-    for name in np.unique(instruments):
-        idx = np.flatnonzero((instruments == name) & np.isfinite(t))
-        for j, sign in ((0, 1.0), (1, -1.0)):
-            result = temporal_fill(t[idx], ds["band_mean_field"].values[idx, j], ds["band_coverage"].values[idx, j],
-                                   cap, abs_mean=ds["band_abs_field"].values[idx, j])
-            added[idx, j] = np.nan_to_num(result["mean_added"])
-            added_abs[idx, j] = np.nan_to_num(result["abs_added"])
-            dipole[idx] += sign * result["dipole_added"]
-            error[idx, j] = result["error"]
-    ds["mean_field"].values[:] = ds["mean_field"].values - old + added
-    ds["signed_flux"].values[:] = ds["signed_flux"].values + (added - old) * area
-    ds["unsigned_flux"].values[:] = ds["unsigned_flux"].values + (added_abs - old_abs) * area
-    ds["axial_dipole"].values[:] = ds["axial_dipole"].values + dipole - old_dipole
-    ds["fill_error"].values[:] = error
-    ds["fill_added"] = (("time", "hemisphere"), added, {"units": "G", "long_name": "cap mean field added by the fill"})
-    ds["fill_added_abs"] = (("time", "hemisphere"), added_abs,
-                            {"units": "G", "long_name": "cap mean |field| added by the fill"})
-    ds["fill_added_dipole"] = (("time",), dipole, {"units": "G", "long_name": "axial dipole added by the fill"})
     return ds
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import io
+import math
 
 from .timeseries import format_date
 
@@ -40,6 +41,10 @@ def events_table(found: dict) -> str:
     if found["scale_factors"]:
         lines.append("separate cap factors needed: " + ("yes" if found["band_factors_needed"] else
                                                         "no (one polar factor fits both caps and the dipole)"))
+    fill = found.get("fill") or "not recorded"
+    lines.append(f"polar fields: unseen part of the caps filled: {fill}" + (
+        " (each map leaves out what it did not see: values are low where a pole was hidden)" if fill == "none" else
+        "" if fill == "not recorded" else "; at minima, +/- its uncertainty"))
     lines.append(f"{'event':<18} {'hemisphere':<10} {'date':<10}  {'window':<23}  value")
     for hemisphere in ("north", "south"):
         for r in found["reversals"][hemisphere]:
@@ -53,9 +58,10 @@ def events_table(found: dict) -> str:
     for m in found["maxima"]:
         lines.append(f"{'cycle maximum':<18} {'':<10} {format_date(m['time']):<10}  {'':<23}  SSN {m['sunspot_number']:.1f}")
     for a in found["at_minima"]:
+        north, south = (f"{a[h]:+.2f}" + (f" +/- {a[h + '_fill_error']:.2f}" if math.isfinite(
+            a.get(h + "_fill_error", math.nan)) else "") for h in ("north", "south"))
         lines.append(f"{'at minimum':<18} {'N / S / D':<10} {format_date(a['time']):<10}  {'':<23}  "
-                     f"{a['north']:+.2f} / {a['south']:+.2f} / {a['axial_dipole']:+.2f} G, "
-                     f"asymmetry {a['asymmetry']:+.2f}")
+                     f"{north} / {south} / {a['axial_dipole']:+.2f} G, asymmetry {a['asymmetry']:+.2f}")
     return "\n".join(lines)
 
 
