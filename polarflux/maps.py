@@ -18,16 +18,15 @@ Anything else is refused with :class:`~polarflux.errors.MapFormatError`.
 
 from __future__ import annotations
 
-import math
 import os
-import warnings
-from collections.abc import Mapping
+from collections.abc import Iterator, Mapping
 from typing import Any
 
 import numpy as np
 from astropy import units as u
 from astropy.time import Time
 
+from . import _pixels
 from ._header import (
     _gauss_per_unit,
     _LatAxis,
@@ -39,11 +38,20 @@ from ._header import (
     parse_header_time,
     quiet_time_warnings,
 )
-from ._pixels import RowStatistics, _copy_with_statistics, _row_statistics
+from ._pixels import (
+    RowStatistics,
+    _row_statistics,
+    astropy_image,
+    first_line,
+    inherit,
+    oriented_copy,
+    plane_index,
+    refusals,
+)
 from .errors import MapFormatError
 from .los import LOS_MAX_FACTOR
 
-__all__ = ["SynopticMap", "read_map", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
+__all__ = ["SynopticMap", "read_map", "read_planes", "count_planes", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
 
 GRIDS = ("sine-latitude", "equal-angle")
 
@@ -79,6 +87,8 @@ class SynopticMap:
     los_b0, los_b0_how : ndarray or None, str
         For a map read as line-of-sight field: each column's B0 angle (degrees)
         used to convert it to radial field, and where that B0 came from.
+    plane : int or None
+        Index of the map in its file's cube of realizations (:func:`read_planes`); None for a 2-D map.
 
     The constructor copies ``br`` (``copy=False`` hands the array over: do not
     change it afterwards except through ``m.br``).
@@ -126,6 +136,7 @@ class SynopticMap:
         self.header = dict(header or {})
         self.los_b0: np.ndarray | None = None
         self.los_b0_how = ""
+        self.plane: int | None = None
         name = self.source or "map"
         if values.ndim != 2:
             raise MapFormatError(f"{name}: br must be 2-D (lat, lon), got shape {values.shape}")
@@ -257,103 +268,210 @@ def read_map(
     Parameters
     ----------
     path : str, os.PathLike or sunpy.map.GenericMap
-        A FITS file (plain or tile-compressed; the first image HDU holding 2-D
-        data is used), or a sunpy map whose ``meta`` follows the same header
-        conventions.
+        A FITS file (plain, gzip-compressed or tile-compressed; the first image
+        HDU holding 2-D or more data is used), or a sunpy map whose ``meta``
+        follows the same header conventions.
     field : {"radial", "los"}
         "radial": the map holds the radial field. "los": it holds line-of-sight
-        field, converted to radial by dividing by cos(latitude) at the pixel
-        centre (the radial-field assumption for maps built from central-meridian
-        data). The factor is capped at ``los_max_factor``.
+        field, converted to radial by dividing by cos(latitude - B0) (see
+        :mod:`polarflux.los`), the factor capped at ``los_max_factor``.
     plane : int, optional
-        For a 3-D cube, the index of the plane (along the slowest FITS axis) to
-        read. A cube is refused without it.
+        For a cube (3-D or more: a stack of realizations), the index of the map
+        to read, counted over the planes in file order (the slowest FITS axis
+        first). A cube of more than one map is refused without it; see
+        :func:`read_planes` to read them all.
     los_max_factor : float
         Cap of the 1/cos(latitude - B0) factor for ``field="los"``.
 
     Returns
     -------
     SynopticMap
+        ``plane`` is set for a map read from a cube, None otherwise.
 
     Raises
     ------
     MapFormatError
-        Naming the file, when it is not FITS, empty, truncated, has no 2-D image,
-        an unknown projection, a latitude axis not spanning the sphere, a
-        longitude axis not spanning 360 degrees, only missing values, or an
-        unknown unit.
+        Naming the file, when it is not FITS, empty, truncated, damaged (its
+        CHECKSUM/DATASUM do not match), has no 2-D image, an unknown
+        projection, a latitude axis not spanning the sphere, a longitude axis
+        not spanning 360 degrees, only missing values, or an unknown unit; or
+        when it is a cube and no valid ``plane`` was named.
+
+    Notes
+    -----
+    A plain or gzip file is read once, in blocks of rows through one reused
+    buffer (never memory-mapped), and the row sums the measures need are taken
+    as the blocks arrive. Where the header has ``DATASUM`` or ``CHECKSUM`` they
+    are verified on the same bytes (for a cube, over all its planes).
     """
-    if field not in ("radial", "los"):
-        raise MapFormatError(f"{path}: unknown field {field!r}; expected 'radial' or 'los'")
+    _check_field(field, path)
     if hasattr(path, "meta") and hasattr(path, "data"):
         header = {str(k).upper(): v for k, v in dict(path.meta).items()}
         source = str(header.get("FILENAME", "") or "sunpy map")
         values, stats, lat_axis, lon_axis = _prepare(header, np.asarray(path.data), plane, source)
-    else:
-        source = os.fspath(path)
-        header, values, stats, lat_axis, lon_axis = _read_fits_image(source, plane)
-    return _build_map(values, stats, header, lat_axis, lon_axis, source, field, los_max_factor)
+        return _build_map(values, stats, header, lat_axis, lon_axis, source, field, los_max_factor)
+    with _ImageFile(os.fspath(path)) as image:
+        index = plane_index(image.shape, plane, image.source)
+        return image.read(index, field, los_max_factor, verify=True)
 
 
-def _read_fits_image(source: str, plane: int | None) -> tuple[dict, np.ndarray, _LatAxis, _LonAxis]:
-    """Header, oriented pixel copy and axes of the first image HDU holding 2-D or more data.
+def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MAX_FACTOR) -> Iterator[SynopticMap]:
+    """Read every map of a cube (a stack of realizations), each once, in file order.
 
-    The file is memory-mapped only while the pixels are copied out, then closed:
-    no map keeps a file handle or a view into the file alive.
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A FITS file, as for :func:`read_map`. A 2-D map yields itself once.
+    field : {"radial", "los"}
+        As for :func:`read_map`.
+    los_max_factor : float
+        As for :func:`read_map`.
+
+    Yields
+    ------
+    SynopticMap
+        One per plane, ``plane`` its index (0, 1, ...; None for a 2-D file).
+        Every plane carries the cube's time, Carrington rotation and instrument
+        from the header (a cube's realizations stand for the same rotation).
+
+    Raises
+    ------
+    MapFormatError
+        As :func:`read_map`, when the first map is asked for (the file is opened
+        then). Where the header has ``DATASUM`` or ``CHECKSUM``, they are
+        verified over all planes before the first map is yielded, so a damaged
+        cube yields nothing.
+
     """
-    if os.path.isdir(source):
-        raise MapFormatError(f"{source}: is a directory, not a FITS file")
-    try:
-        size = os.path.getsize(source)
-    except OSError as exc:
-        raise MapFormatError(f"{source}: cannot open ({exc.strerror or exc})") from None
-    if size == 0:
-        raise MapFormatError(f"{source}: empty file")
-    try:
+    _check_field(field, path)
+    with _ImageFile(os.fspath(path)) as image:
+        image.verify_all()
+        for index in range(image.nplanes) if len(image.shape) > 2 else (None,):
+            yield image.read(index, field, los_max_factor, verify=False)
+
+
+def count_planes(path: Any) -> int:
+    """Number of maps in a FITS file: the planes of a cube, 1 for a 2-D map.
+
+    Only the headers are read (and, for a tile-compressed file, its table
+    header), so this is cheap on a large cube.
+
+    Raises
+    ------
+    MapFormatError
+        Naming the file, when it is not FITS, has no 2-D image, or is cut short
+        inside a header.
+    """
+    with _ImageFile(os.fspath(path), pixels=False) as image:
+        return image.nplanes
+
+
+def _check_field(field: str, path: Any) -> None:
+    if field not in ("radial", "los"):
+        raise MapFormatError(f"{path}: unknown field {field!r}; expected 'radial' or 'los'")
+
+
+class _ImageFile:
+    """The first image of a FITS file: header, axes, and reading of its planes.
+
+    Plain and gzip files are walked by :mod:`polarflux._pixels` and each plane
+    read once from the file; tile-compressed (and bzip2/zip) files are decoded
+    by astropy, with its CHECKSUM/DATASUM verification. Keywords of a data-less
+    primary header apply to an image in an extension unless it says
+    ``INHERIT = F`` (the FITS keyword-inheritance convention), so a product
+    that keeps its times and instrument in the primary header is read whole.
+    """
+
+    def __init__(self, source: str, pixels: bool = True) -> None:
+        self.source = source
+        self._file = None
+        self._decoded: np.ndarray | None = None
+        self._meta: dict = {}  # time, rotation, column B0: the same for every plane
+        if os.path.isdir(source):
+            raise MapFormatError(f"{source}: is a directory, not a FITS file")
         try:
-            return _first_image(source, plane, memmap=True)
-        except ValueError as exc:
-            if "memory-mapped" not in str(exc):
-                raise
-            # astropy cannot memory-map scaled integer data (BZERO/BSCALE/BLANK)
-            return _first_image(source, plane, memmap=False)
-    except MapFormatError:
-        raise
-    except PermissionError:
-        raise MapFormatError(f"{source}: cannot open (permission denied)") from None
-    except Exception as exc:  # astropy raises OSError, ValueError, TypeError, warnings, ...
-        if "checksum verification failed" in str(exc).lower() or "datasum verification failed" in str(exc).lower():
-            raise MapFormatError(f"{source}: damaged: its CHECKSUM/DATASUM do not match the contents "
-                                 f"({_first_line(exc)})") from None
-        raise MapFormatError(f"{source}: not a readable FITS file ({_first_line(exc)})") from None
+            size = os.path.getsize(source)
+        except OSError as exc:
+            raise MapFormatError(f"{source}: cannot open ({exc.strerror or exc})") from None
+        if size == 0:
+            raise MapFormatError(f"{source}: empty file")
+        try:
+            self._open(pixels)
+        except BaseException:
+            self.close()
+            raise
 
+    def _open(self, pixels: bool) -> None:
+        source = self.source
+        with refusals(source):
+            self._file = _pixels.open_fits(source)
+            found = _pixels.find_image(self._file) if self._file is not None else "astropy"
+            if found is None:
+                raise MapFormatError(f"{source}: no 2-D image in any HDU")
+            if isinstance(found, str):  # tile-compressed, bzip2 or zip: astropy decodes
+                self.close()
+                header, primary, self._decoded, shape = astropy_image(source, pixels)
+                self.image = None
+            else:
+                self.image = found
+                header, primary, shape = found.header, found.primary, found.shape
+                if not _pixels.is_gzip(self._file) and os.path.getsize(source) < found.offset + found.nbytes:
+                    raise _pixels.truncated(source, found, os.path.getsize(source))
+        self.header = inherit(header, primary)
+        self.shape = tuple(int(n) for n in shape)
+        self.nplanes = int(np.prod(self.shape[:-2]))
+        self.lat_axis = _latitude_axis(self.header, self.shape[-2], source)
+        self.lon_axis = _longitude_axis(self.header, self.shape[-1], source)
+        if self.lat_axis.projection != self.lon_axis.projection:
+            raise MapFormatError(
+                f"{source}: longitude and latitude axes disagree on the projection "
+                f"({self.header.get('CTYPE1')!r}, {self.header.get('CTYPE2')!r})"
+            )
 
-def _first_image(source: str, plane: int | None, memmap: bool):
-    from astropy.io import fits
-    from astropy.utils.exceptions import AstropyUserWarning
+    def __enter__(self) -> _ImageFile:
+        return self
 
-    with warnings.catch_warnings():
-        # Truncation and header damage arrive as astropy warnings; treat them as errors.
-        warnings.simplefilter("error", AstropyUserWarning)
-        # checksum=True: CHECKSUM / DATASUM, where present, are verified (a damaged tile that
-        # still decodes would otherwise be measured as good); files without them cost nothing more
-        with fits.open(source, memmap=memmap, lazy_load_hdus=True, checksum=True) as hdul:
-            for hdu in hdul:
-                if not getattr(hdu, "is_image", False) or int(hdu.header.get("NAXIS", 0)) < 2:
-                    continue
-                data = hdu.data
-                if data is None:
-                    continue
-                header = dict(hdu.header.items())
-                values, stats, lat_axis, lon_axis = _prepare(header, data, plane, source)
-                del data
-                return header, values, stats, lat_axis, lon_axis
-    raise MapFormatError(f"{source}: no 2-D image in any HDU")
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        if self._file is not None:
+            self._file.close()
+            self._file = None
+
+    def verify_all(self) -> None:
+        """Check DATASUM/CHECKSUM over the whole data unit now (when the header has them)."""
+        if self.image is not None and _pixels.wants_checksum(self.image):
+            with refusals(self.source):
+                _pixels.check_sums(self.image, _pixels.data_sum(self._file, self.image, self.source), self.source)
+
+    def read(self, index: int | None, field: str, los_max_factor: float, verify: bool) -> SynopticMap:
+        """Map ``index`` (None: the 2-D image) as a SynopticMap, its pixels read once."""
+        source, lat_axis, lon_axis = self.source, self.lat_axis, self.lon_axis
+        if self.image is None:
+            data = self._decoded.reshape((-1,) + self.shape[-2:])[index or 0]
+            values, stats = oriented_copy(data, self.header, lat_axis, lon_axis)
+        else:
+            image = self.image
+            layout = _pixels.Layout(lat_axis.flip, lon_axis.flip, lon_axis.drop_last, lon_axis.roll)
+            with refusals(source):
+                scaling = _pixels.scaling_for(image.bitpix, self.header)
+                values, stats = _pixels.read_plane(
+                    self._file, image, index or 0, layout, scaling, source,
+                    verify=verify and _pixels.wants_checksum(image),
+                )
+        m = _build_map(values, stats, self.header, lat_axis, lon_axis, source, field, los_max_factor, self._meta)
+        m.plane = index
+        return m
 
 
 def _prepare(header: Mapping, data: np.ndarray, plane: int | None, source: str):
-    """Select the plane, read the axes from the header, and copy the pixels out in map order."""
-    data = _select_plane(data, plane, source)
+    """Select the plane of in-memory pixels, read the axes from the header, and copy the pixels out in map order."""
+    if data.ndim < 2:
+        raise MapFormatError(f"{source}: no 2-D image (data has {data.ndim} dimension(s))")
+    index = plane_index(data.shape, plane, source)
+    if index is not None:
+        data = data.reshape((-1,) + data.shape[-2:])[index]
     nlat, nlon = data.shape
     lat_axis = _latitude_axis(header, nlat, source)
     lon_axis = _longitude_axis(header, nlon, source)
@@ -362,62 +480,7 @@ def _prepare(header: Mapping, data: np.ndarray, plane: int | None, source: str):
             f"{source}: longitude and latitude axes disagree on the projection "
             f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
         )
-    return (*_oriented_copy(data, header, lat_axis, lon_axis), lat_axis, lon_axis)
-
-
-def _oriented_copy(
-    data: np.ndarray, header: Mapping, lat_axis: _LatAxis, lon_axis: _LonAxis
-) -> tuple[np.ndarray, RowStatistics]:
-    """One copy of the pixels: south row first, longitude ascending, native byte order.
-
-    Float32 data stay float32 (float64 on first use of ``SynopticMap.br``); other
-    types become float64. Integer ``BLANK`` values, a numeric ``MISSING`` value,
-    NaN and inf become NaN. Returns the copy and its row statistics.
-    """
-    view = data
-    if lat_axis.flip:
-        view = view[::-1]
-    if lon_axis.drop_last:
-        view = view[:, :-1]
-    if lon_axis.flip:
-        view = view[:, ::-1]
-    dtype = np.float32 if data.dtype.kind == "f" and data.dtype.itemsize <= 4 else np.float64
-    sentinels = []
-    blank = header.get("BLANK")
-    if data.dtype.kind in "iu" and isinstance(blank, int) and not isinstance(blank, bool):
-        sentinels.append(float(blank))
-    missing = header.get("MISSING")
-    if isinstance(missing, (int, float)) and not isinstance(missing, bool) and math.isfinite(missing):
-        sentinels.append(float(missing))
-    return _copy_with_statistics(view, dtype, lon_axis.roll, tuple(sentinels))
-
-
-def _first_line(exc: BaseException) -> str:
-    """The first line of an exception's message, without astropy's advice on keywords."""
-    text = str(exc).strip().splitlines()
-    if not text:
-        return type(exc).__name__
-    return text[0].split(". If this is really a FITS file")[0].rstrip(".")
-
-
-def _select_plane(data: np.ndarray, plane: int | None, source: str) -> np.ndarray:
-    if data.ndim == 2:
-        if plane not in (None, 0):
-            raise MapFormatError(f"{source}: plane={plane} asked for, but the image is 2-D")
-        return data
-    if data.ndim < 2:
-        raise MapFormatError(f"{source}: no 2-D image (data has {data.ndim} dimension(s))")
-    extra = data.shape[:-2]
-    nplanes = int(np.prod(extra))
-    if plane is None:
-        if nplanes == 1:
-            return data.reshape(data.shape[-2:])
-        raise MapFormatError(
-            f"{source}: {data.ndim}-D cube with {nplanes} planes; name one with plane=N"
-        )
-    if not 0 <= plane < nplanes:
-        raise MapFormatError(f"{source}: plane={plane} outside the cube's {nplanes} planes")
-    return data.reshape((nplanes,) + data.shape[-2:])[plane]
+    return (*oriented_copy(data, header, lat_axis, lon_axis), lat_axis, lon_axis)
 
 
 def _build_map(
@@ -429,7 +492,13 @@ def _build_map(
     source: str,
     field: str,
     los_max_factor: float,
+    cache: dict | None = None,
 ) -> SynopticMap:
+    """The map of oriented pixels: unit, plausibility, time, rotation, instrument, line-of-sight conversion.
+
+    ``cache`` keeps what depends on the header only (time, rotation, column B0)
+    between the planes of one cube.
+    """
     factor = _gauss_per_unit(header, source)
     if stats.counts.sum() == 0:
         raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
@@ -447,23 +516,17 @@ def _build_map(
     if factor != 1.0:
         values *= factor
         stats.scale(values, factor)
-    with quiet_time_warnings():
-        time = _map_time(header, source)
-        rotation = _rotation_number(header, lon_axis.rotation, time, source)
-        if rotation is not None and not 0 < rotation < 100_000:
-            raise MapFormatError(f"{source}: Carrington rotation {rotation} is outside 1-99999")
-        if time is None and rotation is not None:
-            from sunpy.coordinates.sun import carrington_rotation_time
-
-            try:
-                time = carrington_rotation_time(rotation + 0.5).utc
-            except Exception as exc:  # ERFA refuses dates it cannot represent
-                raise MapFormatError(f"{source}: rotation {rotation} gives no usable date ({_first_line(exc)})") from None
+    cache = {} if cache is None else cache
+    if "time" not in cache:
+        cache["time"], cache["rotation"] = _time_and_rotation(header, lon_axis, source)
+    time, rotation = cache["time"], cache["rotation"]
     los_b0, los_b0_how = None, ""
     if field == "los":
         from .los import column_b0, los_to_radial
 
-        los_b0, los_b0_how = column_b0(header, lon_axis.centres, rotation, time, source)
+        if "los_b0" not in cache:
+            cache["los_b0"] = column_b0(header, lon_axis.centres, rotation, time, source)
+        los_b0, los_b0_how = cache["los_b0"]
         los_to_radial(values, lat_axis.centres, los_b0, los_max_factor)
         stats = _row_statistics(values)
     instrument = ""
@@ -488,6 +551,22 @@ def _build_map(
     m._row_stats = stats
     m.los_b0, m.los_b0_how = los_b0, los_b0_how
     return m
+
+
+def _time_and_rotation(header: Mapping, lon_axis: _LonAxis, source: str):
+    with quiet_time_warnings():
+        time = _map_time(header, source)
+        rotation = _rotation_number(header, lon_axis.rotation, time, source)
+        if rotation is not None and not 0 < rotation < 100_000:
+            raise MapFormatError(f"{source}: Carrington rotation {rotation} is outside 1-99999")
+        if time is None and rotation is not None:
+            from sunpy.coordinates.sun import carrington_rotation_time
+
+            try:
+                time = carrington_rotation_time(rotation + 0.5).utc
+            except Exception as exc:  # ERFA refuses dates it cannot represent
+                raise MapFormatError(f"{source}: rotation {rotation} gives no usable date ({first_line(exc)})") from None
+    return time, rotation
 
 
 # --------------------------------------------------------------------------- writing

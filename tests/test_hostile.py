@@ -54,7 +54,7 @@ def build_corpus(folder):
     (folder / "naxis_mismatch.fits").write_bytes(mismatch.encode("ascii") + raw[2880:])
     expect["naxis_mismatch.fits"] = "not a readable FITS file"
     put("line.fits", np.ones(NLON, np.float32), {"BUNIT": "G"}, "no 2-D image")
-    put("cube.fits", np.ones((3, NLAT, NLON), np.float32), message="3 planes; name one with plane=N")
+    put("cube.fits", np.ones((3, NLAT, NLON), np.float32), message="a cube of 3 maps (realizations); measure one with --plane N")
     put("all_nan.fits", np.full((NLAT, NLON), np.nan, np.float32), message="all values are missing")
     put("all_zero.fits", np.zeros((NLAT, NLON), np.float32))  # valid: zero flux, full coverage
     inf = good_data(1)

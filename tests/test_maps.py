@@ -233,9 +233,12 @@ def test_tile_compressed_map_in_first_extension(tmp_path):
 def test_cube_needs_a_plane(tmp_path):
     cube = np.stack([np.full((90, 180), k, np.float32) for k in range(3)])
     path = write_fits(tmp_path / "cube.fits", cube, cea_header(90, 180))
-    with pytest.raises(pf.MapFormatError, match="cube.fits.*3 planes.*plane"):
+    # one message for both users: the command line's options and the Python argument
+    with pytest.raises(pf.MapFormatError, match=r"cube.fits: a cube of 3 maps \(realizations\); measure one with "
+                       r"--plane N \(plane=N in Python\) or all with --planes all"):
         pf.read_map(path)
     assert np.all(pf.read_map(path, plane=2).br == 2.0)
+    assert pf.read_map(path, plane=2).plane == 2
 
 
 def test_los_field_is_divided_by_cos_latitude_minus_b0_with_a_cap(tmp_path):
