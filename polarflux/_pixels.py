@@ -47,25 +47,24 @@ class RowStatistics:
         self._abs_sums = np.full(sums.shape, np.nan)
 
     def abs_sums(self, rows: slice) -> np.ndarray:
-        """Sum of |pixel| over the finite pixels of each row in ``rows`` (in cache-sized blocks)."""
+        """Sum of |pixel| over the finite pixels of each row in ``rows``.
+
+        Complete rows are summed by BLAS ``sasum``/``dasum`` (one read of the row,
+        no temporary); rows with missing pixels without them.
+        """
         cached = self._abs_sums[rows]
         todo = np.flatnonzero(np.isnan(cached))
         if todo.size:
-            start = rows.start or 0
-            first, last = start + todo[0], start + todo[-1] + 1
-            nlon = self._values.shape[1]
-            step = max(1, _BLOCK_BYTES // (nlon * self._values.itemsize))
-            scratch = np.empty((min(step, last - first), nlon), self._values.dtype)
-            for a in range(first, last, step):
-                b = min(a + step, last)
-                block = np.abs(self._values[a:b], out=scratch[: b - a])
-                result = np.einsum("ij->i", block)
-                found = self.counts[a:b]
-                result[found == 0] = 0.0
-                for row in np.flatnonzero((found > 0) & (found < nlon)):  # rows with some pixels missing
-                    values = block[row]
-                    result[row] = np.einsum("i->", np.where(np.isfinite(values), values, 0.0))
-                cached[a - start : b - start] = result
+            from scipy.linalg.blas import dasum, sasum
+
+            asum = sasum if self._values.dtype == np.float32 else dasum
+            start, nlon = rows.start or 0, self._values.shape[1]
+            for k in todo:
+                row, found = self._values[start + k], self.counts[start + k]
+                if found == nlon:
+                    cached[k] = asum(row)
+                else:
+                    cached[k] = np.einsum("i->", np.abs(np.where(np.isfinite(row), row, 0.0))) if found else 0.0
         return cached
 
     def scale(self, values: np.ndarray, factor) -> None:
