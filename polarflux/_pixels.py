@@ -425,11 +425,9 @@ def open_fits(source: str):
     f = open(source, "rb", buffering=0)
     magic = f.read(4)
     f.seek(0)
-    if magic[:2] == b"\x1f\x8b":
-        return gzip.GzipFile(fileobj=f, mode="rb")
-    if magic[:3] == b"BZh" or magic == b"PK\x03\x04":
+    if magic[:2] == b"\x1f\x8b" or magic[:3] == b"BZh" or magic == b"PK\x03\x04":
         f.close()
-        return None
+        return gzip.GzipFile(source, "rb") if magic[:2] == b"\x1f\x8b" else None  # closes its own file
     return f
 
 

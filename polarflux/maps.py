@@ -460,8 +460,9 @@ class _ImageFile:
                     self._file, image, index or 0, layout, scaling, source,
                     verify=verify and _pixels.wants_checksum(image),
                 )
-        m = _build_map(values, stats, self.header, lat_axis, lon_axis, source, field, los_max_factor, self._meta)
-        m.plane = index
+        label = source if index is None else f"{source} (plane {index})"  # what a refusal names
+        m = _build_map(values, stats, self.header, lat_axis, lon_axis, label, field, los_max_factor, self._meta)
+        m.source, m.plane = source, index
         return m
 
 

@@ -207,6 +207,18 @@ def test_gzip_file_reads_as_the_plain_file(tmp_path, small_blocks):
     np.testing.assert_array_equal(pf.read_map(packed).values, finite_or_nan(fits.getdata(packed)))
 
 
+def test_reading_gzip_files_leaves_no_file_open(tmp_path):
+    plain = write_fits(tmp_path / "p.fits", noisy((36, 90)), cea_header(36, 90))
+    packed = tmp_path / "p.fits.gz"
+    packed.write_bytes(gzip.compress(open(plain, "rb").read()))
+    fd_dir = "/proc/self/fd"
+    if not os.path.isdir(fd_dir):
+        pytest.skip("needs /proc to count open files")
+    before = len(os.listdir(fd_dir))
+    kept = [pf.read_map(packed) for _ in range(50)] + [m for _ in range(50) for m in read_planes(packed)]
+    assert len(os.listdir(fd_dir)) <= before + 1 and len(kept) == 100
+
+
 def test_the_pixels_are_read_from_the_file_once(tmp_path, monkeypatch):
     data = noisy((90, 180))
     hdul = fits.HDUList([fits.PrimaryHDU(data=data, header=fits.Header(cea_header(90, 180)))])
@@ -426,3 +438,13 @@ def test_plane_outside_the_cube_and_a_wrong_plane_argument(tmp_path):
         pf.read_map(path, plane="1")
     with pytest.raises(pf.MapFormatError, match="c.fits: a cube of 3 maps"):
         pf.read_map(path)
+
+
+def test_a_plane_without_data_is_refused_naming_the_file_and_plane(tmp_path):
+    cube = np.ones((3, 36, 90), np.float32)
+    cube[1] = np.nan
+    path = write_fits(tmp_path / "c.fits", cube, cea_header(36, 90))
+    planes = read_planes(path)
+    assert next(planes).plane == 0
+    with pytest.raises(pf.MapFormatError, match=r"^.*c.fits \(plane 1\): all values are missing"):
+        next(planes)
