@@ -280,7 +280,8 @@ def _viewing_correction(mean: np.ndarray, flux: np.ndarray, b0: np.ndarray, view
         good = np.isfinite(regressor) & np.isfinite(mean[:, j])
         slope = float(np.sum(regressor[good] * (mean[good, j] - trend[good])) / np.sum(regressor[good] ** 2)) \
             if good.sum() > 3 and np.sum(regressor[good] ** 2) > 0 else 0.0
-        c = slope / (1.0 - slope * float(np.nanmean(away_mean)))
+        known = np.isfinite(away_mean)
+        c = slope / (1.0 - slope * float(away_mean[known].mean())) if known.any() else 0.0
         coefficients[hemisphere] = c
         ratio = np.maximum(1.0 + c * away, 0.2)  # never more than five-fold
         out_mean[:, j] = mean[:, j] / ratio
