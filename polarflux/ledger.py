@@ -64,9 +64,11 @@ def file_digest(path: str, chunk: int = 1 << 20) -> str:
     return digest.hexdigest()
 
 
-def settings_key(cap_latitude: float, fill: str, field: str) -> str:
-    return json.dumps({"cap": float(cap_latitude), "fill": fill, "field": field, "version": MEASURE_VERSION},
-                      sort_keys=True)
+def settings_key(cap_latitude: float, fill: str, field: str, plane=None) -> str:
+    settings = {"cap": float(cap_latitude), "fill": fill, "field": field, "version": MEASURE_VERSION}
+    if plane is not None:  # only cubes measured by plane carry it, so other keys stay as they were
+        settings["plane"] = plane
+    return json.dumps(settings, sort_keys=True)
 
 
 class Ledger:

@@ -20,12 +20,11 @@ import numpy as np
 
 from ._io import atomic_path
 from ._version import __version__
-from .errors import MapFormatError, PolarfluxError, SettingsError
-from .fill import DEFAULT_FILL, RECORD_FILLS, band_edges, band_fill_error, cap_bands, refill
+from .errors import PolarfluxError, SettingsError
+from .fill import DEFAULT_FILL, RECORD_FILLS, band_edges, refill
 from .geometry import HEMISPHERES, as_degrees
-from .los import FIELDS, convert_to_radial, field_in_header
-from .maps import quiet_time_warnings, read_map
-from .measure import axial_dipole, measure_caps
+from .los import FIELDS
+from .rows import check_plane, measure_file
 
 __all__ = [
     "CSV_COLUMNS",
@@ -63,11 +62,15 @@ CSV_COLUMNS = (
     "south_fill_error_g",
     "field",
     "fill",
+    "north_spread_g",
+    "south_spread_g",
+    "axial_dipole_spread_g",
+    "planes",
 )
 #: Columns holding numbers (the rest are text).
 NUMERIC_COLUMNS = tuple(c for c in CSV_COLUMNS[5:] if c not in ("field", "fill"))
 #: Columns a record written before the fill uncertainty may lack (read as NaN or unknown).
-_OPTIONAL_COLUMNS = ("north_fill_error_g", "south_fill_error_g", "field", "fill")
+_OPTIONAL_COLUMNS = CSV_COLUMNS[CSV_COLUMNS.index("north_fill_error_g"):]
 
 # Dataset variable -> (CSV column suffix, units, long name)
 _CAP_VARIABLES = {
@@ -76,6 +79,7 @@ _CAP_VARIABLES = {
     "mean_field": ("mean_field_g", "G", "mean radial field of the polar cap (signed flux / cap area)"),
     "coverage": ("coverage", "1", "fraction of the polar cap area with observed data"),
     "fill_error": ("fill_error_g", "G", "uncertainty of the cap mean field from the fill of its unseen part"),
+    "spread": ("spread_g", "G", "standard deviation of the cap mean field over a cube's realizations (NaN: one map)"),
 }
 
 
@@ -136,61 +140,17 @@ def expand_inputs(inputs: Iterable[str | os.PathLike]) -> tuple[list[str], list[
     return files, problems
 
 
-def measure_file(path: str, cap_latitude: float = 60.0, fill: str = DEFAULT_FILL, field: str = "auto") -> dict:
-    """Read and measure one map; return one record row (the CSV columns, and the cap's latitude bands).
-
-    ``fill="temporal"`` needs the record: the row holds the unfilled measures and
-    the bands (:func:`polarflux.fill.cap_bands`) that :func:`rows_to_dataset` fills from.
-    ``field="auto"`` reads line-of-sight field where the header says so
-    (:func:`polarflux.los.field_in_header`), else radial field.
-    """
-    m = read_map(path, field="radial" if field == "auto" else field)
-    if field == "auto" and field_in_header(m.header) == "los":
-        convert_to_radial(m)
-    if m.time is None:
-        from ._header import TIME_KEYS
-
-        raise MapFormatError(f"{path}: the map has no time: none of {', '.join(TIME_KEYS)} nor a Carrington "
-                             "rotation number (CAR_ROT) in its header; a record needs each map's time")
-    map_fill = "none" if fill == "temporal" else fill
-    caps = measure_caps(m, cap_latitude=cap_latitude, fill=map_fill)
-    with quiet_time_warnings():
-        time = None if m.time is None else m.time.utc.isot
-    row = {
-        "source": m.source,
-        "instrument": m.instrument,
-        "carrington_rotation": m.carrington_rotation,
-        "time": time,
-        "cap_deg": caps.cap_latitude,
-    }
-    for hemisphere in HEMISPHERES:
-        cap = caps[hemisphere]
-        row[f"{hemisphere}_signed_flux_mx"] = cap.signed_flux.to_value("Mx")
-        row[f"{hemisphere}_unsigned_flux_mx"] = cap.unsigned_flux.to_value("Mx")
-        row[f"{hemisphere}_mean_field_g"] = cap.mean_field.to_value("G")
-        row[f"{hemisphere}_coverage"] = cap.coverage
-    row["axial_dipole_g"] = axial_dipole(m, fill=map_fill, cap_latitude=cap_latitude).to_value("G")
-    row.update(cap_bands(m, caps.cap_latitude))
-    for hemisphere in HEMISPHERES:
-        row[f"{hemisphere}_fill_error_g"] = (float("nan") if fill == "temporal"
-                                            else band_fill_error(row, caps.cap_latitude, fill, hemisphere))
-    row["field"] = "los" if m.los_b0 is not None else "radial"
-    row["fill"] = fill
-    row["b0_how"] = m.los_b0_how
-    return row
-
-
 def _measure_or_fail(args: tuple) -> tuple[str, dict | None, str | None]:
-    path, cap, fill, field = args[:4]
+    path, cap, fill, field, plane = args[:5]
     try:
-        return path, measure_file(path, cap, fill, field), None
+        return path, measure_file(path, cap, fill, field, plane), None
     except PolarfluxError as exc:
         return path, None, str(exc)
     except Exception as exc:  # an unexpected failure must not end the batch
         return path, None, f"{path}: unexpected {type(exc).__name__}: {exc}"
 
 
-def _check_settings(cap_latitude, fill: str, field: str, jobs: int) -> float:
+def _check_settings(cap_latitude, fill: str, field: str, jobs: int, plane=None) -> float:
     cap = as_degrees(cap_latitude, "cap_latitude")
     if not 0.0 < cap < 90.0:
         raise SettingsError(f"cap latitude {cap} must lie strictly between 0 and 90 degrees")
@@ -200,6 +160,7 @@ def _check_settings(cap_latitude, fill: str, field: str, jobs: int) -> float:
         raise SettingsError(f"field={field!r} is not one of {FIELDS}")
     if int(jobs) < 1:
         raise SettingsError(f"jobs={jobs} must be at least 1")
+    check_plane(plane)
     return cap
 
 
@@ -212,10 +173,10 @@ def available_cores() -> int:
 
 
 def _measure_and_hash(item: tuple):
-    """Measure one map and, when asked (item[4]), hash its bytes too: (path, row, error, digest)."""
+    """Measure one map and, when asked (item[5]), hash its bytes too: (path, row, error, digest)."""
     path, row, error = _measure_or_fail(item)
     digest = None
-    if len(item) > 4 and item[4]:
+    if len(item) > 5 and item[5]:
         from .ledger import file_digest
 
         try:
@@ -271,14 +232,15 @@ def iter_measurements(
     field: str = "auto",
     jobs: int = 1,
     dask: str | None = None,
+    plane=None,
 ) -> Iterator[tuple[str, dict | None, str | None]]:
     """Measure maps, yielding ``(path, row, None)`` or ``(path, None, reason)`` as each completes.
 
     ``jobs > 1`` uses a pool of processes; ``dask`` ("local" or a scheduler address)
     a dask.distributed cluster. Only small rows cross process boundaries.
     """
-    cap = _check_settings(cap_latitude, fill, field, jobs)
-    work = [(os.fspath(p), cap, fill, field) for p in paths]
+    cap = _check_settings(cap_latitude, fill, field, jobs, plane)
+    work = [(os.fspath(p), cap, fill, field, plane) for p in paths]
     for outcome in _dispatch(work, int(jobs), dask):
         yield outcome[:3]
 
@@ -296,7 +258,7 @@ class LedgerRun:
 
 def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = DEFAULT_FILL, field: str = "auto",
                         jobs: int = 1, dask: str | None = None, on_result=None,
-                        retry_failed: bool = False) -> LedgerRun:
+                        retry_failed: bool = False, plane=None) -> LedgerRun:
     """Measure the files the ledger does not know yet, commit each result, and return every input's row.
 
     ``on_result(path, error_or_None, new)`` is called for each file (``new`` False when
@@ -305,8 +267,8 @@ def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = D
     """
     from .ledger import file_digest, settings_key
 
-    cap = _check_settings(cap_latitude, fill, field, jobs)
-    settings = settings_key(cap, fill, field)
+    cap = _check_settings(cap_latitude, fill, field, jobs, plane)
+    settings = settings_key(cap, fill, field, plane)
     known: dict[str, tuple] = {}
     todo, meta, failures = [], {}, []
     for path in files:
@@ -329,7 +291,7 @@ def measure_with_ledger(files: list[str], ledger, cap_latitude=60, fill: str = D
         meta[path] = (digest, stat)
         hit = None if digest is None else ledger.lookup(digest, settings)
         if hit is None or retry_failed and hit[1] is not None:
-            todo.append((path, cap, fill, field, digest is None))
+            todo.append((path, cap, fill, field, plane, digest is None))
         else:
             known[path] = hit
             if on_result:
@@ -370,6 +332,7 @@ def measure_archive(
     progress: Callable[[str, str | None], None] | None = None,
     ledger=None,
     dask: str | None = None,
+    plane=None,
 ):
     """Measure every map and return the record as an ``xarray.Dataset``.
 
@@ -390,6 +353,10 @@ def measure_archive(
         with these settings are not measured again, and new results are committed.
     dask : str, optional
         "local" or a dask.distributed scheduler address to measure on.
+    plane : int or "all", optional
+        For cubes of realizations: measure plane N of each, or all of them (the record
+        then holds their mean, and their spread in ``spread`` and ``axial_dipole_spread``;
+        see :func:`polarflux.rows.measure_file`).
 
     Returns
     -------
@@ -407,13 +374,14 @@ def measure_archive(
         book = ledger if isinstance(ledger, Ledger) else Ledger(ledger)
         try:
             run = measure_with_ledger(files, book, cap, fill, field, jobs, dask,
-                                      on_result=None if progress is None else (lambda p, e, new: progress(p, e)))
+                                      on_result=None if progress is None else (lambda p, e, new: progress(p, e)),
+                                      plane=plane)
         finally:
             if book is not ledger:
                 book.close()
         return rows_to_dataset(run.rows, cap_deg=cap, fill=fill, field=field, failures=failures + run.failures)
     rows = []
-    for path, row, error in iter_measurements(files, cap_latitude, fill, field, jobs, dask):
+    for path, row, error in iter_measurements(files, cap_latitude, fill, field, jobs, dask, plane):
         if error is None:
             rows.append(row)
         else:
@@ -451,6 +419,11 @@ def rows_to_dataset(rows: list[dict], cap_deg: float, fill: str, field: str, fai
         np.array([r["axial_dipole_g"] for r in rows], dtype=np.float64),
         {"units": "G", "long_name": "axial dipole moment (3/4pi) integral of Br sin(latitude) dOmega"},
     )
+    data_vars["axial_dipole_spread"] = (
+        ("time",), np.array([r.get("axial_dipole_spread_g", np.nan) for r in rows], dtype=np.float64),
+        {"units": "G", "long_name": "standard deviation of the axial dipole over a cube's realizations (NaN: one map)"})
+    data_vars["planes"] = (("time",), np.array([int(r.get("planes", 1) or 1) for r in rows], dtype=np.int64),
+                           {"long_name": "maps (realizations) the entry is the mean of"})
     if has_bands:
         edges = band_edges(float(cap_deg))
         for name, key, units, long_name in (
@@ -540,6 +513,9 @@ def _dataset_rows(ds) -> Iterator[dict]:
             for j, hemisphere in enumerate(HEMISPHERES):
                 row[f"{hemisphere}_{suffix}"] = repr(float(ds[name].values[i, j]))
         row["axial_dipole_g"] = repr(float(ds["axial_dipole"].values[i]))
+        row["axial_dipole_spread_g"] = repr(float(ds["axial_dipole_spread"].values[i])) \
+            if "axial_dipole_spread" in ds else "nan"
+        row["planes"] = int(ds["planes"].values[i]) if "planes" in ds else 1
         row["field"] = str(ds["map_field"].values[i]) if "map_field" in ds else str(ds.attrs.get("field", ""))
         row["fill"] = str(ds.attrs.get("fill", ""))
         yield row

@@ -17,6 +17,10 @@ def check_measure_options(args, parser: argparse.ArgumentParser) -> None:
         parser.error(f"--cap {args.cap:g}: must lie strictly between 0 and 90 degrees")
     if args.jobs < 1:
         parser.error(f"--jobs {args.jobs}: must be at least 1")
+    if getattr(args, "plane", None) is not None and args.plane < 0:
+        parser.error(f"--plane {args.plane}: must be 0 or more (0 is the first plane)")
+    args.plane = getattr(args, "plane", None) if getattr(args, "plane", None) is not None \
+        else getattr(args, "planes", None)
 
 
 def run_measurement(files, problems, args, label: str, quiet: bool = False):
@@ -28,7 +32,8 @@ def run_measurement(files, problems, args, label: str, quiet: bool = False):
     for failure in problems:
         progress.message(f"polarflux: {failure}")
     rows = []
-    for path, row, error in iter_measurements(files, args.cap, args.fill, args.field, args.jobs):
+    for path, row, error in iter_measurements(files, args.cap, args.fill, args.field, args.jobs,
+                                              plane=getattr(args, "plane", None)):
         if error is None:
             rows.append(row)
         else:

@@ -55,7 +55,7 @@ def measure(args, parser) -> int:
 
     with Ledger(ledger_path) as ledger:
         run = measure_with_ledger(files, ledger, args.cap, args.fill, args.field, args.jobs, args.dask,
-                                  on_result=report, retry_failed=args.retry_failed)
+                                  on_result=report, retry_failed=args.retry_failed, plane=args.plane)
     progress.close()
     failures = list(problems) + run.failures
     if not run.rows:

@@ -200,6 +200,13 @@ def _add_measure_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--field", choices=FIELDS, default="auto",
                         help="the maps hold radial or line-of-sight (los) field; 'auto' reads line of sight where "
                         "the header says MAPFIELD = 'LOS' (default: auto)")
+    cubes = parser.add_mutually_exclusive_group()
+    cubes.add_argument("--plane", type=int, metavar="N",
+                       help="for data cubes of realizations (model-ensemble maps): measure plane N of each "
+                       "(0 is the first)")
+    cubes.add_argument("--planes", choices=("all",),
+                       help="for data cubes: 'all' measures every realization; the record holds their mean and "
+                       "their spread (north_spread_g, south_spread_g, axial_dipole_spread_g)")
     from ..record import available_cores
 
     parser.add_argument("--jobs", type=int, default=available_cores(), metavar="N",
