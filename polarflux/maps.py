@@ -528,7 +528,7 @@ def _build_map(
         if "los_b0" not in cache:
             cache["los_b0"] = column_b0(header, lon_axis.centres, rotation, time, source)
         los_b0, los_b0_how = cache["los_b0"]
-        los_to_radial(values, lat_axis.centres, los_b0, los_max_factor)
+        los_to_radial(values, lat_axis.centres, los_b0, los_max_factor, lat_edges=lat_axis.edges)
         stats = _row_statistics(values)
     instrument = ""
     for key in _INSTRUMENT_KEYS:

@@ -246,8 +246,13 @@ def test_los_field_is_divided_by_cos_latitude_minus_b0_with_a_cap(tmp_path):
     data = np.ones((180, 360), np.float32)
     path = write_fits(tmp_path / "los.fits", data, cea_header(B0COL0=0.0))
     radial = pf.read_map(path, field="los")
-    expected = 1.0 / np.maximum(np.cos(np.deg2rad(radial.lat)), 1 / pf.maps.LOS_MAX_FACTOR)
-    np.testing.assert_allclose(radial.br[:, 0], expected, rtol=1e-12)
+    # the divisor: cos(latitude) averaged over each row's area, here by scipy's quadrature
+    from scipy.integrate import quad
+
+    mean_cos = np.array([quad(lambda p: np.cos(p) ** 2, a, b)[0] / (np.sin(b) - np.sin(a))
+                         for a, b in np.deg2rad(np.c_[radial.lat_edges[:-1], radial.lat_edges[1:]])])
+    expected = 1.0 / np.maximum(mean_cos, 1 / pf.maps.LOS_MAX_FACTOR)
+    np.testing.assert_allclose(radial.br[:, 0], expected, rtol=1e-9)
     assert radial.br.max() <= pf.maps.LOS_MAX_FACTOR
     assert "B0COLk" in radial.los_b0_how
     # On a 1-degree equal-angle grid the last rows (89.5 degrees) reach the cap.
@@ -255,7 +260,8 @@ def test_los_field_is_divided_by_cos_latitude_minus_b0_with_a_cap(tmp_path):
            "CRPIX2": 90.5, "CRVAL2": 0, "CDELT2": 1, "BUNIT": "G", "B0COL0": 0.0}
     car = pf.read_map(write_fits(tmp_path / "los_car.fits", np.ones((180, 360), np.float32), hdr), field="los")
     assert car.br.max() == pytest.approx(pf.maps.LOS_MAX_FACTOR, rel=1e-12)
-    assert car.br[90, 0] == pytest.approx(1 / np.cos(np.deg2rad(0.5)), rel=1e-12)
+    mean_cos = quad(lambda p: np.cos(p) ** 2, 0.0, np.deg2rad(1.0))[0] / np.sin(np.deg2rad(1.0))
+    assert car.br[90, 0] == pytest.approx(1 / mean_cos, rel=1e-9)
 
 
 def test_time_from_drms_style_tai_and_date_obs(tmp_path):
