@@ -299,10 +299,9 @@ def read_map(
 
     Notes
     -----
-    A plain or gzip file is read once, in blocks of rows through one reused
-    buffer (never memory-mapped), and the row sums the measures need are taken
-    as the blocks arrive. Where the header has ``DATASUM`` or ``CHECKSUM`` they
-    are verified on the same bytes (for a cube, over all its planes).
+    A plain or gzip file is read once, in blocks of rows (never memory-mapped),
+    the row sums the measures need taken as the blocks arrive; ``DATASUM`` and
+    ``CHECKSUM``, where present, are verified on the same bytes.
     """
     _check_field(field, path)
     if hasattr(path, "meta") and hasattr(path, "data"):
@@ -353,8 +352,7 @@ def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MA
 def count_planes(path: Any) -> int:
     """Number of maps in a FITS file: the planes of a cube, 1 for a 2-D map.
 
-    Only the headers are read (and, for a tile-compressed file, its table
-    header), so this is cheap on a large cube.
+    Only the headers are read, so this is cheap on a large cube.
 
     Raises
     ------
@@ -448,6 +446,8 @@ class _ImageFile:
     def read(self, index: int | None, field: str, los_max_factor: float, verify: bool) -> SynopticMap:
         """Map ``index`` (None: the 2-D image) as a SynopticMap, its pixels read once."""
         source, lat_axis, lon_axis = self.source, self.lat_axis, self.lon_axis
+        if "time" not in self._meta:  # header work first, while the interpreter's data are still in cache
+            self._meta["time"], self._meta["rotation"] = _time_and_rotation(self.header, lon_axis, source)
         if self.image is None:
             data = self._decoded.reshape((-1,) + self.shape[-2:])[index or 0]
             values, stats = oriented_copy(data, self.header, lat_axis, lon_axis)
