@@ -441,27 +441,27 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         ``forecast`` (amplitude and time of maximum, median and 68/95 % ranges) and ``caution``.
     """
     from .calibration import merge_instruments
+    from .cutoff import cut_record, cut_sunspots, data_end
     from .events import from_decimal_year, record_events, to_decimal_year
 
     t_ssn = np.asarray(sunspot_times, dtype=np.float64)
     v_ssn = np.asarray(sunspot_values, dtype=np.float64)
+    end = data_end(record, t_ssn)
     if as_of is None:
-        as_of_year = float(min(to_decimal_year(record["time"].values)[0].max(), t_ssn.max()))
+        as_of_year = end  # now: when the latest map and sunspot value both exist
     elif isinstance(as_of, (float, int)):
         as_of_year = float(as_of)
     else:
         as_of_year = float(to_decimal_year(np.array([as_of], dtype="datetime64[ns]"))[0][0])
     as_of_ns = from_decimal_year(np.array([as_of_year]), True)[0]
-    past = record.isel(time=np.flatnonzero(record["time"].values.astype("datetime64[ns]") <= as_of_ns))
-    if past.sizes["time"] < record.sizes["time"]:
-        from .fill import refill
-
-        past = refill(past)  # a temporal fill from the maps before as_of alone
+    # only what existed on the date: a map once its rotation has ended, a sunspot value once its
+    # month (or year) has; a temporal fill made again from the maps kept
+    past = cut_record(record, as_of_year)
+    t_ssn, v_ssn = cut_sunspots(t_ssn, v_ssn, as_of_year)
     if past.sizes["time"] < 13:
         raise SettingsError("the record before the forecast date is shorter than a year")
-    keep = t_ssn <= as_of_year
     merged = merge_instruments(past, viewing=viewing)
-    events = record_events(merged, t_ssn[keep], v_ssn[keep])
+    events = record_events(merged, t_ssn, v_ssn)
     pairs = calibration if calibration is not None else calibration_from_events(events, proxy)
     fit = fit_precursor([p["proxy"] for p in pairs], [p["next_amplitude"] for p in pairs],
                         labels=[p["cycle"] for p in pairs])

@@ -50,6 +50,14 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
+from .cutoff import (  # noqa: F401 - re-exported: part of this module's names
+    _HOUR_NS,
+    ROTATION_DAYS,
+    cut_record,
+    cut_sunspots,
+    map_available,
+    sunspot_available,
+)
 from .errors import PolarfluxError, SettingsError
 from .events import find_cycle_extrema, from_decimal_year, to_decimal_year
 from .scores import (  # noqa: F401 - re-exported: part of this module's names
@@ -79,12 +87,9 @@ __all__ = [
     "summary_line",
 ]
 
-#: Mean synodic Carrington rotation period, days.
-ROTATION_DAYS = 27.2753
 #: A cycle's amplitude joins the climatology this long after its maximum (the series must
 #: have passed the maximum before it is known, as ``find_cycle_extrema`` has it).
 KNOWN_AFTER_YEARS = 2.0
-_HOUR_NS = np.timedelta64(3600 * 10**9, "ns")
 
 
 # --------------------------------------------------------------------------- what a date may see
@@ -99,51 +104,6 @@ def _years(values) -> np.ndarray:
         except ValueError:
             arr = arr.astype(np.float64)
     return to_decimal_year(arr)[0]
-
-
-def map_available(times) -> np.ndarray:
-    """When each map becomes available: its mid-rotation time plus half a rotation (datetime64[ns])."""
-    half = np.timedelta64(int(round(0.5 * ROTATION_DAYS * 86400e9)), "ns")
-    return np.asarray(times).astype("datetime64[ns]") + half
-
-
-def cut_record(record, date: float):
-    """The record entries whose rotation had ended on ``date`` (decimal year), their fill made from them alone."""
-    date_ns = from_decimal_year(np.array([date]), True)[0]
-    keep = np.flatnonzero(map_available(record["time"].values) <= date_ns)
-    from .fill import refill
-
-    return refill(record.isel(time=keep))  # a temporal fill from the maps that existed then
-
-
-def sunspot_available(times) -> np.ndarray:
-    """Decimal year at which each sunspot value's period has ended.
-
-    Monthly series (median step under two months): the first day of the next
-    calendar month. Yearly series (median step 0.9 to 1.1 years): the next first of
-    January. Any other cadence: the time plus one median step.
-    """
-    t = np.asarray(times, dtype=np.float64)
-    if t.size < 2:
-        return t.copy()
-    step = float(np.median(np.diff(t)))
-    # an hour's margin: a first-of-month date must not round into the month before
-    moments = from_decimal_year(t, True) + _HOUR_NS
-    if step < 2.0 / 12.0:
-        ends = (moments.astype("datetime64[M]") + 1).astype("datetime64[ns]")
-    elif 0.9 <= step <= 1.1:
-        ends = (moments.astype("datetime64[Y]") + 1).astype("datetime64[ns]")
-    else:
-        return t + step
-    return to_decimal_year(ends)[0]
-
-
-def cut_sunspots(times, values, date: float) -> tuple[np.ndarray, np.ndarray]:
-    """The sunspot values whose month (or year) had ended on ``date``."""
-    t = np.asarray(times, dtype=np.float64)
-    v = np.asarray(values, dtype=np.float64)
-    keep = sunspot_available(t) <= date
-    return t[keep], v[keep]
 
 
 # --------------------------------------------------------------------------- dates

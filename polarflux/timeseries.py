@@ -96,4 +96,6 @@ def format_date(year: float) -> str:
     """``YYYY-MM-DD`` of a decimal year, or "-" for NaN (tables and reports)."""
     if not np.isfinite(year):
         return "-"
-    return str(np.datetime_as_string(from_decimal_year(np.array([year]), True)[0], unit="D"))
+    # to the nearest minute first: a date read as midnight must not print as the day before
+    moment = from_decimal_year(np.array([year]), True)[0] + np.timedelta64(30, "s")
+    return str(np.datetime_as_string(moment.astype("datetime64[m]"), unit="D"))

@@ -147,3 +147,41 @@ def test_forecast_command(hindcast_scenario, tmp_path, capsys):
     assert (tmp_path / "record_forecast_fan.png").stat().st_size > 10_000
     assert (tmp_path / "record_forecast_calibration.png").exists()
     assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv")]) == 2  # no silent overwrite
+
+
+def test_as_of_sees_only_maps_whose_rotation_ended_and_months_that_ended(hindcast_scenario):
+    # the rule, written out here with numpy datetimes (not polarflux's cut): a map exists once its
+    # rotation has ended (map time = mid-rotation, + 27.2753 / 2 days), a monthly mean once its month has
+    folder, truth, record, t, v = hindcast_scenario
+    times = record["time"].values.astype("datetime64[ns]")
+    k = times.size - 40
+    as_of = times[k] + np.timedelta64(int(0.25 * 27.2753 * 86400), "s")  # map k's rotation still running
+    ended = times + np.timedelta64(int(0.5 * 27.2753 * 86400), "s") <= as_of
+    assert not ended[k] and ended[k - 1]
+    from polarflux.timeseries import from_decimal_year, to_decimal_year
+
+    month_start = from_decimal_year(t, True).astype("datetime64[M]")
+    month_over = (month_start + 1).astype("datetime64[ns]") <= as_of
+    as_of_year = float(to_decimal_year(np.array([as_of]))[0][0])
+    full = forecast_from_record(record, t, v, as_of=as_of, members=60, seed=4)
+    by_hand = forecast_from_record(record.isel(time=np.flatnonzero(ended)), t[month_over], v[month_over],
+                                   as_of=as_of, members=60, seed=4)
+    assert full["projection"]["from"] < as_of_year - 0.5 * 27.2753 / 365.25 + 1e-6
+    np.testing.assert_allclose(full["samples"]["amplitude"], by_hand["samples"]["amplitude"])
+
+
+def test_as_of_after_the_data_is_refused_and_the_date_prints_as_given(hindcast_scenario, tmp_path, capsys):
+    from polarflux.cli import main
+
+    folder, truth, record, t, v = hindcast_scenario
+    path = tmp_path / "record.nc"
+    pf.write_record(record, path)
+    with pytest.raises(SystemExit) as stop:
+        main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--as-of", "2200-01-01"])
+    assert stop.value.code == 2
+    assert "--as-of 2200-01-01: after the end of the data" in capsys.readouterr().err
+    assert not list(tmp_path.glob("record_forecast*"))
+    when = str(record["time"].values[-60])[:7] + "-01"
+    assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--as-of", when,
+                 "--members", "40"]) == 0
+    assert f"as of {when}" in capsys.readouterr().out

@@ -85,6 +85,16 @@ def forecast(args, parser) -> int:
     record_path = Path(args.record)
     record = read_record(record_path)
     t, v = read_sunspots(args.sunspots)
+    if as_of is not None:
+        import numpy as np
+
+        from ..cutoff import data_end
+        from ..timeseries import format_date, to_decimal_year
+
+        end = data_end(record, t)
+        if float(to_decimal_year(np.array([as_of], dtype="datetime64[ns]"))[0][0]) > end + 1e-9:
+            parser.error(f"--as-of {args.as_of}: after the end of the data ({format_date(end)}, when the latest map "
+                         "and sunspot value exist); leave it out to forecast from the latest data")
     calibration = read_calibration(args.calibration) if args.calibration else None
     prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
     outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
