@@ -10,6 +10,7 @@ wall time with the number of cores.
 
     python bench/hindcast.py [--preset hard] [--seeds 5] [--cycles 5] [--every 6M] [--jobs 2]
                              [--members 100] [--grid coarse|low] [--dask local|ADDRESS] [--out PREFIX]
+                             [--law linear proportional]
 """
 
 from __future__ import annotations
@@ -89,6 +90,8 @@ def main() -> None:
     parser.add_argument("--grid", choices=("coarse", "low"), default="coarse")
     parser.add_argument("--dask", default=None, help="'local' or a dask.distributed scheduler address")
     parser.add_argument("--out", default=None, help="write the CSV tables and figures with this prefix")
+    parser.add_argument("--law", nargs="+", default=["linear"], choices=("linear", "proportional"),
+                        help="the precursor law(s): each is scored on the same worlds and dates")
     args = parser.parse_args()
     seeds = list(range(args.first_seed, args.first_seed + args.seeds))
     clock = time.perf_counter()
@@ -100,35 +103,39 @@ def main() -> None:
         print(f"worlds: {len(seeds)} x {args.cycles} cycles, preset {args.preset or 'default'}, {args.grid} grid, "
               f"seeds {seeds[0]}-{seeds[-1]}; generated and measured in {generated:.0f} s "
               f"(each {min(s for _, s in made):.0f}-{max(s for _, s in made):.0f} s of one core)")
-        results = []
+        results = {law: [] for law in args.law}
         for (folder, _), seed in zip(made, seeds, strict=True):
             record = pf.read_record(os.path.join(folder, "record.nc"))
             t, v = pf.read_sunspots(os.path.join(folder, "sunspots.csv"))
             dates = dates_around_minima(record, t, v, args.every)
-            start = time.perf_counter()
-            result = hindcast(record, (t, v), dates, members=args.members, seed=seed, jobs=args.jobs,
-                              dask=args.dask, truth=os.path.join(folder, "truth.json"))
-            every = summarise(result)
-            print(f"  seed {seed}: {every['forecasts']} forecasts ({every['failures']} failed, {every['scored']} "
-                  f"scored) in {time.perf_counter() - start:.0f} s")
-            labels = np.array([f"seed {seed} {c}" if c else "" for c in result["cycle"].values], dtype=str)
-            results.append(result.assign(world=("date", np.full(result.sizes["date"], seed)),
-                                         cycle=("date", labels)))
-        table = xr.concat(results, dim="date")
+            for law in args.law:
+                start = time.perf_counter()
+                result = hindcast(record, (t, v), dates, members=args.members, seed=seed, jobs=args.jobs,
+                                  dask=args.dask, truth=os.path.join(folder, "truth.json"), law=law)
+                every = summarise(result)
+                print(f"  seed {seed}, {law} law: {every['forecasts']} forecasts ({every['failures']} failed, "
+                      f"{every['scored']} scored) in {time.perf_counter() - start:.0f} s")
+                labels = np.array([f"seed {seed} {c}" if c else "" for c in result["cycle"].values], dtype=str)
+                results[law].append(result.assign(world=("date", np.full(result.sizes["date"], seed)),
+                                                  cycle=("date", labels)))
+        tables = {law: xr.concat(rows, dim="date") for law, rows in results.items()}
     wall = time.perf_counter() - clock
-    print()
-    print(format_lead_table(lead_table(table)))
-    print()
-    print(summary_line(table))
-    outside = summarise(table)["forecasts"] - sum(r["forecasts"] for r in lead_table(table, outside=False))
-    if outside:
-        print(f"({outside} forecasts fall outside the lead bins: their date is near a minimum of the series but "
-              "the truth's minimum of the cycle forecast lies elsewhere)")
+    for law, table in tables.items():
+        print()
+        print(f"precursor law: {law}")
+        print(format_lead_table(lead_table(table)))
+        print()
+        print(summary_line(table))
+        outside = summarise(table)["forecasts"] - sum(r["forecasts"] for r in lead_table(table, outside=False))
+        if outside:
+            print(f"({outside} forecasts fall outside the lead bins: their date is near a minimum of the series but "
+                  "the truth's minimum of the cycle forecast lies elsewhere)")
     print(f"wall time {wall:.0f} s on {args.jobs} process(es) of {os.cpu_count()} cores "
           f"(worlds {generated:.0f} s, forecasts {wall - generated:.0f} s)")
     if args.out:
-        for path in write_hindcast(table, args.out, force=True):
-            print(f"wrote {path}")
+        for law, table in tables.items():
+            for path in write_hindcast(table, f"{args.out}_{law}" if len(tables) > 1 else args.out, force=True):
+                print(f"wrote {path}")
 
 
 if __name__ == "__main__":

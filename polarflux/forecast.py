@@ -43,19 +43,20 @@ rules, not this tool.
 from __future__ import annotations
 
 import csv
-import math
 import os
-from dataclasses import dataclass, field
 
 import numpy as np
 
 from .errors import PolarfluxError, SettingsError
+from .precursor import DEFAULT_LAW, LAWS, PrecursorFit, Prediction, ProportionalFit, fit_precursor
 
 __all__ = [
     "CAUTION",
     "PrecursorFit",
+    "ProportionalFit",
     "Prediction",
     "fit_precursor",
+    "LAWS",
     "calibration_from_events",
     "read_calibration",
     "project_to_minimum",
@@ -69,140 +70,6 @@ CAUTION = (
     "Operations that affect crew or spacecraft safety must follow the responsible agencies' "
     "official space-weather forecasts and local rules, not this tool."
 )
-
-
-@dataclass(frozen=True)
-class Prediction:
-    """A predicted amplitude: the central value and prediction intervals (68 % and 95 %)."""
-
-    median: np.ndarray | np.float64
-    low68: np.ndarray | np.float64
-    high68: np.ndarray | np.float64
-    low95: np.ndarray | np.float64
-    high95: np.ndarray | np.float64
-    se: np.ndarray | np.float64
-
-
-@dataclass
-class PrecursorFit:
-    """Ordinary least squares of next-cycle amplitude on a polar proxy at minimum.
-
-    Attributes
-    ----------
-    coefficients : ndarray
-        (intercept, slope), or (slope,) through the origin.
-    standard_errors : ndarray
-    residual_sd : float
-        Standard deviation of the residuals, sqrt(RSS / (n - p)).
-    dof : int
-        n - p.
-    loo_errors : ndarray
-        Leave-one-out hindcast errors (predicted minus actual), one per cycle.
-    """
-
-    proxy: np.ndarray
-    amplitude: np.ndarray
-    through_origin: bool
-    coefficients: np.ndarray
-    standard_errors: np.ndarray
-    residual_sd: float
-    dof: int
-    loo_errors: np.ndarray
-    labels: list = field(default_factory=list)
-    _inverse: np.ndarray = field(default=None, repr=False)
-
-    @property
-    def slope(self) -> float:
-        return float(self.coefficients[-1])
-
-    @property
-    def intercept(self) -> float:
-        return 0.0 if self.through_origin else float(self.coefficients[0])
-
-    def _design(self, x) -> np.ndarray:
-        x = np.atleast_1d(np.asarray(x, dtype=np.float64))
-        return x[:, None] if self.through_origin else np.column_stack([np.ones_like(x), x])
-
-    def predict(self, x) -> Prediction:
-        """Prediction intervals (Student t with ``dof`` degrees of freedom) at proxy value(s) ``x``.
-
-        Parameters
-        ----------
-        x : float or array-like
-            Proxy value(s).
-
-        Returns
-        -------
-        Prediction
-            Its fields have the shape of ``x``: numpy's convention, so a scalar
-            ``x`` gives scalars (``numpy.float64``) and an array gives arrays.
-        """
-        from scipy import stats  # imported here: it costs most of the command's start-up time
-
-        shape = np.shape(x)
-        design = self._design(np.ravel(np.asarray(x, dtype=np.float64)))
-        mean = design @ self.coefficients
-        se = self.residual_sd * np.sqrt(1.0 + np.einsum("ij,jk,ik->i", design, self._inverse, design))
-        t68, t95 = stats.t.ppf([0.84134474606854293, 0.975], self.dof)
-        fields = (mean, mean - t68 * se, mean + t68 * se, mean - t95 * se, mean + t95 * se, se)
-        # reshape(()) then [()] turns a one-value result into a numpy scalar; arrays keep x's shape
-        return Prediction(*(np.reshape(f, shape)[()] for f in fields))
-
-    def sample(self, x, rng: np.random.Generator) -> np.ndarray:
-        """One draw from the predictive distribution at each proxy value in ``x``."""
-        p = self.predict(x)
-        return p.median + p.se * rng.standard_t(self.dof, size=np.shape(p.median))
-
-    @property
-    def loo_rms(self) -> float:
-        return float(np.sqrt(np.mean(self.loo_errors**2)))
-
-
-def _ols(x: np.ndarray, y: np.ndarray, through_origin: bool):
-    design = x[:, None] if through_origin else np.column_stack([np.ones_like(x), x])
-    inverse = np.linalg.inv(design.T @ design)
-    beta = inverse @ design.T @ y
-    dof = x.size - design.shape[1]
-    rss = float(np.sum((y - design @ beta) ** 2))
-    s = math.sqrt(rss / dof) if dof > 0 else math.nan  # leave-one-out fits may have no residual freedom
-    return beta, np.sqrt(np.diag(inverse)) * s, s, dof, inverse
-
-
-def fit_precursor(proxy, amplitude, through_origin: bool = False, labels=None) -> PrecursorFit:
-    """Fit amplitude = intercept + slope x proxy (or slope x proxy) by ordinary least squares.
-
-    Parameters
-    ----------
-    proxy, amplitude : array-like
-        One pair per calibration cycle: the polar proxy at a minimum (sign is
-        dropped: the polar field's sign alternates) and the amplitude of the cycle
-        after it.
-    through_origin : bool
-        Fit without an intercept.
-
-    Raises
-    ------
-    SettingsError
-        With fewer than three cycles, or when the pairs hold NaN.
-    """
-    x = np.abs(np.asarray(proxy, dtype=np.float64))
-    y = np.asarray(amplitude, dtype=np.float64)
-    if x.shape != y.shape or x.ndim != 1:
-        raise SettingsError(f"proxy and amplitude must be 1-D and of equal length ({x.shape} vs {y.shape})")
-    if x.size < 3:
-        raise SettingsError(
-            f"a precursor calibration needs at least three cycles; got {x.size}. Add cycles to the record "
-            "or supply a calibration CSV (columns cycle, proxy, next_amplitude, source)"
-        )
-    if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))):
-        raise SettingsError("calibration pairs hold NaN or inf")
-    beta, se, s, dof, inverse = _ols(x, y, through_origin)
-    loo = np.empty(x.size)
-    for i in range(x.size):
-        keep = np.arange(x.size) != i
-        b, *_ = _ols(x[keep], y[keep], through_origin)
-        loo[i] = (b[0] * x[i] if through_origin else b[0] + b[1] * x[i]) - y[i]
-    return PrecursorFit(x, y, through_origin, beta, se, s, dof, loo, list(labels or []), inverse)
 
 
 # --------------------------------------------------------------------------- calibration sets
@@ -415,7 +282,7 @@ def public_result(result: dict) -> dict:
 
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
                          calibration: list[dict] | None = None, as_of=None, members: int = 300, seed: int = 0,
-                         viewing: str = "b0", bases=("",)) -> dict:
+                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW) -> dict:
     """The whole forecast from a measured record and a sunspot series.
 
     Parameters
@@ -430,9 +297,13 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     calibration : list of dict, optional
         Pairs from :func:`read_calibration`; by default they come from the record itself.
     as_of : datetime64 or decimal year, optional
-        Forecast as if it were this date (a hindcast): later maps and sunspot numbers are ignored.
+        Forecast as if it were this date (a hindcast): only maps whose rotation had ended and
+        sunspot means whose month (or year) had ended enter (:mod:`polarflux.cutoff`). Default:
+        when the latest map and sunspot value both exist.
     bases : sequence of str
         Folders against which relative map paths of the record are tried.
+    law : {"linear", "proportional"}
+        The precursor law (:mod:`polarflux.precursor`).
 
     Returns
     -------
@@ -464,7 +335,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     events = record_events(merged, t_ssn, v_ssn)
     pairs = calibration if calibration is not None else calibration_from_events(events, proxy)
     fit = fit_precursor([p["proxy"] for p in pairs], [p["next_amplitude"] for p in pairs],
-                        labels=[p["cycle"] for p in pairs])
+                        labels=[p["cycle"] for p in pairs], law=law)
     minima = [m["time"] for m in events["minima"] if m["time"] <= as_of_year]
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
@@ -500,6 +371,9 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         "proxy": proxy,
         "calibration": {
             "pairs": pairs,
+            "law": fit.law,
+            "description": fit.describe(),
+            "warning": fit.warning,
             "through_origin": fit.through_origin,
             "intercept": fit.intercept,
             "slope": fit.slope,

@@ -241,7 +241,7 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
     median = np.where(np.asarray(p.median) >= 0.0, p.median, np.nan)
     ax.fill_between(span, low95, high95, color="#1f5fa6", alpha=0.15, label="95 % prediction band")
     ax.fill_between(span, low68, high68, color="#1f5fa6", alpha=0.3, label="68 % prediction band")
-    ax.plot(span, median, color="#1f5fa6", label=f"fit: {fit.intercept:.1f} + {fit.slope:.1f} x proxy")
+    ax.plot(span, median, color="#1f5fa6", label=f"fit: {fit.describe()}")
     ax.plot(x, fit.amplitude, "ks", markersize=5, label="calibration cycles")
     for xi, yi, label in zip(x, fit.amplitude, fit.labels or [""] * x.size, strict=True):
         ax.annotate(str(label), (xi, yi), textcoords="offset points", xytext=(4, 4), fontsize="x-small")

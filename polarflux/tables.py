@@ -16,8 +16,7 @@ def forecast_text(result: dict) -> str:
     a, m = fc["amplitude"], fc["maximum_time"]
     lines = [
         f"forecast as of {format_date(result['as_of'])}, proxy |{result['proxy']}| at minimum",
-        f"calibration: amplitude = {cal['intercept']:.1f} + {cal['slope']:.1f} x proxy on {len(cal['pairs'])} cycles "
-        f"(standard errors {', '.join(f'{x:.1f}' for x in cal['standard_errors'])}; residual sd {cal['residual_sd']:.1f})",
+        f"calibration: {_law_text(cal)} on {len(cal['pairs'])} cycles",
         "hindcast errors (leave one out, predicted - actual): "
         + ", ".join(f"{p['cycle']}: {e:+.1f}" for p, e in zip(cal["pairs"], cal["loo_errors"], strict=True))
         + f"; rms {cal['loo_rms']:.1f}",
@@ -30,7 +29,18 @@ def forecast_text(result: dict) -> str:
         f"95 %: {format_date(m['low95'])} to {format_date(m['high95'])})",
         "caution: " + result["caution"],
     ]
+    if cal.get("warning"):
+        lines.insert(2, "WARNING: " + cal["warning"])
     return "\n".join(lines)
+
+
+def _law_text(cal: dict) -> str:
+    errors = ", ".join(f"{x:.2f}" if cal.get("law") == "proportional" else f"{x:.1f}" for x in cal["standard_errors"])
+    if cal.get("law") == "proportional":
+        return (f"amplitude = {cal['slope']:.1f} x proxy, log-normal (standard error of ln k {errors}; "
+                f"scatter {cal['residual_sd']:.2f} in ln amplitude)")
+    return (f"amplitude = {cal['intercept']:.1f} + {cal['slope']:.1f} x proxy (standard errors {errors}; "
+            f"residual sd {cal['residual_sd']:.1f})")
 
 
 def events_table(found: dict) -> str:

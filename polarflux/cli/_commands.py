@@ -99,7 +99,7 @@ def forecast(args, parser) -> int:
     prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
     outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
                           args.force)
-    result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of,
+    result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of, law=args.law,
                                   members=args.members, seed=args.seed, bases=bases(record_path))
     print(forecast_text(result))
     write_forecast(result, t, v, outputs, args.force, caption=f"polarflux forecast: {record_path}")

@@ -84,6 +84,11 @@ def build_parser() -> argparse.ArgumentParser:
                           help="sunspot numbers: columns date (or year) and sunspot_number")
     forecast.add_argument("--calibration", metavar="FILE.csv",
                           help="calibration pairs: columns cycle, proxy, next_amplitude, source")
+    from ..precursor import DEFAULT_LAW, LAWS
+
+    forecast.add_argument("--law", choices=LAWS, default=DEFAULT_LAW,
+                          help="precursor law: 'linear' (amplitude = a + b x proxy, least squares) or 'proportional' "
+                          f"(amplitude = k x proxy with a log-normal scatter: one parameter) (default: {DEFAULT_LAW})")
     forecast.add_argument("--proxy", choices=("axial_dipole", "mean_field"), default="axial_dipole",
                           help="polar proxy at minimum (default: axial_dipole)")
     forecast.add_argument("--members", type=int, default=300, metavar="N", help="ensemble members (default: 300)")
