@@ -229,6 +229,32 @@ def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed:
     }
 
 
+def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: str) -> dict | None:
+    """The measured proxy at the last minimum when the cycle it began is rising, else None.
+
+    Rising: no maximum of the sunspot series after that minimum yet. The proxy is the
+    smoothed record's value at the minimum (``events["at_minima"]``); its relative error
+    combines the fill uncertainty there and the hemispheres' asymmetry (the proxy is not
+    better known than the two caps agree), at least 5 % (our choice).
+    """
+    if any(m["time"] > last_minimum for m in events.get("maxima", [])):
+        return None
+    at = [a for a in events.get("at_minima", []) if abs(a["time"] - last_minimum) < 1e-6]
+    if not at or as_of_year <= last_minimum:
+        return None
+    a = at[0]
+    north, south = abs(a["north"]), abs(a["south"])
+    values = {"axial_dipole": abs(a["axial_dipole"]), "mean_field": 0.5 * (north + south),
+              "north": a["north"], "south": a["south"]}
+    if not all(np.isfinite(values[k]) and values[k] != 0 for k in (proxy, "north", "south")):
+        return None
+    fill = np.nanmean([a.get("north_fill_error", np.nan) / north, a.get("south_fill_error", np.nan) / south]) \
+        if np.isfinite([a.get("north_fill_error", np.nan), a.get("south_fill_error", np.nan)]).any() else 0.0
+    asymmetry = abs(north - south) / (north + south)
+    values["relative_error"] = float(max(0.05, np.hypot(np.nan_to_num(fill), asymmetry)))
+    return values
+
+
 def _fill_relative_error(merged) -> float:
     """The fill uncertainty of the latest year of the merged record, relative to its mean polar field."""
     if "fill_error" not in merged:
@@ -314,6 +340,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     from .calibration import merge_instruments
     from .cutoff import cut_record, cut_sunspots, data_end
     from .events import from_decimal_year, record_events, to_decimal_year
+    from .timeseries import format_date
 
     t_ssn = np.asarray(sunspot_times, dtype=np.float64)
     v_ssn = np.asarray(sunspot_values, dtype=np.float64)
@@ -339,9 +366,21 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     minima = [m["time"] for m in events["minima"] if m["time"] <= as_of_year]
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
-    latest = _latest_profile(past, merged, as_of_ns, bases)
     fill_relative = 0.0
-    if latest is not None:
+    rising = _rising_cycle(events, minima[-1], as_of_year, proxy)
+    latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
+    if rising is not None:
+        # the minimum has passed and the new cycle's maximum is not yet known: the cycle now rising is
+        # the one forecast, from the proxy measured at its minimum (no projection needed)
+        fill_relative = _fill_relative_error(merged)
+        rng = np.random.default_rng(seed + 2)
+        scale = np.maximum(1.0 + rng.normal(0.0, rising["relative_error"], members), 0.1)
+        projection = {"minimum": np.full(members, minima[-1]), proxy: rising[proxy] * scale,
+                      "north": rising["north"] * scale, "south": rising["south"] * scale}
+        now = minima[-1]
+        projection_kind = (f"measured at the minimum of {format_date(minima[-1])} (the cycle now rising; its "
+                           f"smoothed {proxy} with a {100 * rising['relative_error']:.0f} % error)")
+    elif latest is not None:
         profile, edges, path, when, measured = latest
         now = float(to_decimal_year(np.array([when]))[0][0])
         projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
@@ -366,9 +405,22 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         projection = {"minimum": minimum, proxy: rng.normal(recent.mean(), recent.std(ddof=1), members)}
         now, projection_kind = as_of_year, "persistence of the latest proxy (no readable map)"
     result = forecast_next_cycle(fit, projection[proxy], projection["minimum"], seed=seed + 1)
+    if rising is not None:
+        phase = {"phase": "rising", "cycle_start": minima[-1],
+                 "text": f"the cycle that began at the minimum of {format_date(minima[-1])} (rising, its maximum "
+                         "not yet in the sunspot series)"}
+    else:
+        peaks = [m["time"] for m in events.get("maxima", []) if m["time"] > minima[-1]]
+        why = (f"past its maximum of {format_date(peaks[0])}" if peaks else
+               "too young: the smoothed polar field at its minimum is not measured yet")
+        phase = {"phase": "declining" if peaks else "minimum",
+                 "cycle_start": float(result["minimum_time"]["median"]),
+                 "text": f"the next cycle, after the coming minimum (the cycle that began at {format_date(minima[-1])} "
+                         f"is {why})"}
     return {
         "as_of": as_of_year,
         "proxy": proxy,
+        "phase": phase,
         "calibration": {
             "pairs": pairs,
             "law": fit.law,

@@ -15,7 +15,8 @@ def forecast_text(result: dict) -> str:
     cal, proj, fc = result["calibration"], result["projection"], result["forecast"]
     a, m = fc["amplitude"], fc["maximum_time"]
     lines = [
-        f"forecast as of {format_date(result['as_of'])}, proxy |{result['proxy']}| at minimum",
+        f"forecast as of {format_date(result['as_of'])}, proxy |{result['proxy']}| at minimum"
+        + (f"; forecast: {result['phase']['text']}" if result.get("phase") else ""),
         f"calibration: {_law_text(cal)} on {len(cal['pairs'])} cycles",
         "hindcast errors (leave one out, predicted - actual): "
         + ", ".join(f"{p['cycle']}: {e:+.1f}" for p, e in zip(cal["pairs"], cal["loo_errors"], strict=True))

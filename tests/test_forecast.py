@@ -185,3 +185,20 @@ def test_as_of_after_the_data_is_refused_and_the_date_prints_as_given(hindcast_s
     assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--as-of", when,
                  "--members", "40"]) == 0
     assert f"as of {when}" in capsys.readouterr().out
+
+
+def test_after_a_minimum_the_rising_cycle_is_forecast_from_its_measured_minimum(hindcast_scenario):
+    # 1.5 years after a minimum of the series, before the new cycle's maximum: the cycle now rising is
+    # the one forecast (its amplitude from the truth), from the proxy measured at its minimum
+    folder, truth, record, t, v = hindcast_scenario
+    cycle = truth["cycles"][3]
+    as_of = 2051.0 + cycle["minimum_years"] + 1.5
+    assert cycle["maximum_years"] + 2051.0 > as_of
+    result = forecast_from_record(record, t, v, as_of=as_of, members=200, seed=3)
+    assert result["phase"]["phase"] == "rising"
+    assert "measured at the minimum" in result["projection"]["method"]
+    # the minimum the forecast starts from is the series' own, within a rotation or two of the truth's
+    assert abs(result["phase"]["cycle_start"] - (2051.0 + cycle["minimum_years"])) < 0.5
+    amplitude = result["forecast"]["amplitude"]
+    assert amplitude["low95"] <= cycle["amplitude"] <= amplitude["high95"]
+    assert result["forecast"]["maximum_time"]["median"] > as_of
