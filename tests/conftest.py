@@ -94,3 +94,22 @@ def three_cycles(tmp_path_factory):
 def _private_cache(tmp_path_factory, monkeypatch):
     """Every test gets its own cache folder, so the default measurement ledger is never shared."""
     monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path_factory.mktemp("cache")))
+
+
+def band_flux_reference(br, lat_edges, lon_edges, low_deg: float, high_deg: float) -> float:
+    """Signed flux (Mx) of ``br`` (G, rows south to north) between two northern latitudes, computed here.
+
+    Exact cell areas written out (a cell between latitudes a < b and longitudes p < q has area
+    R^2 (q - p)(sin b - sin a); the part of a row inside [low, high] is its overlap in sin(latitude)),
+    with R the IAU 2015 nominal solar radius from astropy.constants (a reference library), so that
+    no function of the package under test enters the reference.
+    """
+    from astropy import constants
+
+    radius_cm = constants.R_sun.to_value("cm")
+    a, b = np.deg2rad(np.asarray(lat_edges[:-1], float)), np.deg2rad(np.asarray(lat_edges[1:], float))
+    lo = np.maximum(a, np.deg2rad(low_deg))
+    hi = np.minimum(b, np.deg2rad(high_deg))
+    weight = np.where(hi > lo, np.sin(hi) - np.sin(lo), 0.0)
+    dlon = np.deg2rad(np.diff(np.asarray(lon_edges, float)))
+    return float(radius_cm**2 * np.sum(weight * (np.asarray(br, float) @ dlon)))

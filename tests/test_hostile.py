@@ -180,15 +180,15 @@ sizes = st.tuples(st.integers(4, 120).map(lambda n: 2 * n), st.integers(1, 90).m
 @given(grid=grids, size=sizes, seed=st.integers(0, 2**32 - 1), scale=st.floats(-50, 50).filter(lambda x: abs(x) > 1e-3),
        caps=st.tuples(st.floats(5, 85), st.floats(5, 85)).filter(lambda c: abs(c[0] - c[1]) > 1e-3))
 def test_measures_are_additive_symmetric_and_linear(grid, size, seed, scale, caps):
-    from polarflux.geometry import SOLAR_RADIUS_CM, cap_row_fraction, sine_edges
+    from conftest import band_flux_reference
 
     rng = np.random.default_rng(seed)
     br = rng.normal(0, 10, size)
     m = pf.SynopticMap.from_array(br, grid=grid)
     low, high = sorted(caps)
     outer, inner = pf.measure_caps(m, low).north, pf.measure_caps(m, high).north
-    band = (cap_row_fraction(m.lat_edges, low, "north") - cap_row_fraction(m.lat_edges, high, "north"))
-    direct = SOLAR_RADIUS_CM**2 * np.sum(band * np.diff(sine_edges(m.lat_edges)) * (br @ np.deg2rad(np.diff(m.lon_edges))))
+    # the band between the caps, by exact cell areas written out independently of the package
+    direct = band_flux_reference(br, m.lat_edges, m.lon_edges, low, high)
     total = abs(outer.unsigned_flux.value) + abs(direct) + 1.0
     assert outer.signed_flux.value - inner.signed_flux.value == pytest.approx(direct, abs=1e-9 * total)
     scaled = pf.measure_caps(pf.SynopticMap.from_array(scale * br, grid=grid), low)

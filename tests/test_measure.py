@@ -136,12 +136,11 @@ def test_cap_flux_adds_up_over_nested_caps():
     outer = pf.measure_caps(m, 50).north
     inner = pf.measure_caps(m, 70).north
     band = pf.measure_caps(m, 50).north.signed_flux - pf.measure_caps(m, 70).north.signed_flux
-    # The band 50..70 computed directly from rows: exact fractional weights make the
-    # two caps' difference equal to the band integral.
-    from polarflux.geometry import SOLAR_RADIUS_CM, cap_row_fraction, sine_edges
+    # The band 50..70 computed independently (exact cell areas written out in conftest, astropy's
+    # R_sun): exact fractional weights make the two caps' difference equal to the band integral.
+    from conftest import band_flux_reference
 
-    w = (cap_row_fraction(m.lat_edges, 50, "north") - cap_row_fraction(m.lat_edges, 70, "north"))
-    direct = SOLAR_RADIUS_CM**2 * np.sum(w * np.diff(sine_edges(m.lat_edges)) * (m.br @ np.deg2rad(np.diff(m.lon_edges))))
+    direct = band_flux_reference(m.br, m.lat_edges, m.lon_edges, 50, 70)
     assert band.value == pytest.approx(direct, rel=1e-10)
     assert outer.area > inner.area
 
