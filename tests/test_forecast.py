@@ -116,12 +116,28 @@ def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
         amp = result["forecast"]["amplitude"]
         errors.append(amp["median"] - target["amplitude"])
         inside += amp["low95"] <= target["amplitude"] <= amp["high95"]
+        assert 0.6 < amp["median"] / target["amplitude"] < 1.6  # a median of 6 against 133 fails here
         assert result["calibration"]["slope"] > 0  # stronger polar field, stronger next cycle
         assert "official space-weather forecasts" in result["caution"]
         assert "transport ensemble" in result["projection"]["method"]
         projected = result["projection"]
         assert projected["north_at_minimum"]["median"] * projected["south_at_minimum"]["median"] < 0
     assert inside / len(targets) >= 0.9, errors
+
+
+@pytest.mark.xfail(strict=True, reason="the projection leaves out the declining cycle's late emergence "
+                   "(issue 15): two years ahead the projected dipole at minimum falls short (2.8 G against "
+                   "about 3.3 G for cycle 5 of this world)")
+def test_hindcast_medians_two_years_ahead_within_their_stated_error(hindcast_scenario):
+    # each median within 2.5 times the error the forecast states for itself: the calibration's
+    # leave-one-out rms combined with the world's own precursor scatter (truth.json, log_scatter)
+    folder, truth, record, t, v = hindcast_scenario
+    scatter = truth["precursor_relation"]["log_scatter"]
+    for target in [c for c in truth["cycles"][3:]] + [truth["next_cycle"]]:
+        result = forecast_from_record(record, t, v, as_of=2051.0 + target["start_years"] - 2.0, members=120, seed=2)
+        error = result["forecast"]["amplitude"]["median"] - target["amplitude"]
+        allowed = 2.5 * np.hypot(result["calibration"]["loo_rms"], scatter * target["amplitude"])
+        assert abs(error) <= allowed, (target["cycle"], error, allowed)
 
 
 def test_dipole_and_mean_field_forecasts_agree(hindcast_scenario):
