@@ -119,11 +119,16 @@ def _finish(fig, ax, ylabel: str, title: str, caption: str | None, legend_title:
 
 
 def _add_caption(fig, caption: str) -> None:
-    """Small grey text along the bottom edge, with room kept for it."""
+    """Small grey text along the bottom edge, wrapped to the figure's width, with room kept for it."""
+    import textwrap
+
+    width = max(60, int(fig.get_figwidth() * 17))  # x-small characters per inch of figure, about
+    lines = textwrap.wrap(caption, width) or [""]
     engine = fig.get_layout_engine()
     if engine is not None and hasattr(engine, "set"):
-        engine.set(rect=(0.0, 0.045, 1.0, 0.955))
-    fig.text(0.01, 0.008, caption, fontsize="x-small", color="0.35", ha="left", va="bottom")
+        bottom = 0.045 + 0.03 * (len(lines) - 1)
+        engine.set(rect=(0.0, bottom, 1.0, 1.0 - bottom))
+    fig.text(0.01, 0.008, "\n".join(lines), fontsize="x-small", color="0.35", ha="left", va="bottom")
 
 
 def plot_record_events(record, events: dict | None = None, ax=None, caption: str | None = None, eras=None):
@@ -198,25 +203,34 @@ def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, capt
         return from_decimal_year(np.asarray(years, dtype=np.float64), True)
 
     fig, ax = _new_axes(ax)
-    t = np.asarray(sunspot_times)
-    v = np.asarray(sunspot_values)
-    history = (t >= result["as_of"] - 25.0) & (t <= result["as_of"])  # what the forecast knew
+    from .cutoff import cut_sunspots
+
+    # only what the forecast knew: the values whose month had ended, smoothed without later data
+    t, v = cut_sunspots(np.asarray(sunspot_times), np.asarray(sunspot_values), result["as_of"])
+    history = t >= result["as_of"] - 25.0
     ax.plot(dates(t[history]), v[history], color="0.6", linewidth=0.6, label="sunspot number")
-    smooth = smooth_13_month(v) if np.median(np.diff(t)) < 2 / 12 else v
-    ax.plot(dates(t[history]), smooth[history], color="black", linewidth=1.2, label="13-month smoothed")
+    smooth = smooth_13_month(v) if t.size > 1 and np.median(np.diff(t)) < 2 / 12 else v
+    ax.plot(dates(t[history]), smooth[history], color="black", linewidth=1.2,
+            label="13-month smoothed")
     samples = result["samples"]
     minima = np.asarray(samples.get("minimum_time", samples["maximum_time"] - 4.0))
-    future = np.linspace(result["as_of"], result["as_of"] + 14.0, 240)
+    # far enough to show the whole 95 % range of the time of maximum, and the decline after it
+    end = max(result["as_of"] + 8.0, float(result["forecast"]["maximum_time"]["high95"]) + 3.0)
+    future = np.linspace(result["as_of"], end, 240)
     count = min(400, samples["amplitude"].size)
     curves = _cycle_curves(samples["amplitude"][:count], minima[:count], future)
     low95, low68, mid, high68, high95 = np.percentile(curves, [2.5, 16, 50, 84, 97.5], axis=0)
     ax.fill_between(dates(future), low95, high95, color="#1f5fa6", alpha=0.18, label="95 % range")
     ax.fill_between(dates(future), low68, high68, color="#1f5fa6", alpha=0.35, label="68 % range")
-    ax.plot(dates(future), mid, color="#1f5fa6", linewidth=1.5, label="median")
+    ax.plot(dates(future), mid, color="#1f5fa6", linewidth=1.5,
+            label="median at each date")
     amp = result["forecast"]["amplitude"]
-    ax.errorbar(dates([result["forecast"]["maximum_time"]["median"]]), [amp["median"]],
+    peak = result["forecast"]["maximum_time"]
+    ax.errorbar(dates([peak["median"]]), [amp["median"]],
                 yerr=[[amp["median"] - amp["low95"]], [amp["high95"] - amp["median"]]], fmt="o",
                 color="#c45a12", capsize=3, label="next maximum (median, 95 %)")
+    ax.hlines(amp["median"], dates([peak["low95"]])[0], dates([peak["high95"]])[0], color="#c45a12",
+              linewidth=3, alpha=0.5, label="time of maximum, 95 %")
     if truth_amplitude is not None:
         ax.axhline(truth_amplitude, color="#c45a12", linestyle=":", linewidth=1.0, label="truth amplitude")
     ax.axvline(dates([result["as_of"]])[0], color="0.4", linestyle="--", linewidth=0.8, label="forecast date")
@@ -224,7 +238,10 @@ def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, capt
     ax.set_ylabel("sunspot number")
     ax.set_title("Next-cycle forecast (probabilistic; see the caution)")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
-    _add_caption(fig, caption or "A forecast is probabilistic; operations follow the official space-weather forecasts.")
+    note = ("Only data that existed on the forecast date; the smoothed line stops six months before it. The median "
+            "curve peaks below the median amplitude because members peak at different times.")
+    _add_caption(fig, f"{caption}. {note}" if caption else
+                 f"{note} A forecast is probabilistic; operations follow the official space-weather forecasts.")
     return fig
 
 

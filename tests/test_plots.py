@@ -301,3 +301,42 @@ def test_butterfly_rows_are_missing_exactly_where_the_map_has_no_data(tmp_path):
         assert np.isnan(profiles[k]).sum() == hidden
         seen = 90 - hidden
         np.testing.assert_allclose(profiles[k, :seen], rows[:seen] + 0.5 / 36, rtol=0, atol=1e-5)
+
+
+def test_fan_chart_draws_only_what_existed_and_reaches_past_the_maximum():
+    # read back from the artists: no sunspot point after the forecast date, the smoothed line stops
+    # six months before it (13-month smoothing needs six later months), the time axis runs past the
+    # 95 % range of the time of maximum
+    from matplotlib.dates import date2num
+
+    from polarflux.plots import plot_forecast_fan
+    from polarflux.timeseries import from_decimal_year
+
+    t = 2040.0 + (np.arange(12 * 30) + 0.5) / 12.0
+    v = 80.0 * np.clip(np.sin(2 * np.pi * (t - 2040.0) / 11.0), 0, None) + 5.0
+    rng = np.random.default_rng(0)
+    n = 300
+    minimum = np.full(n, 2062.5)
+    amplitude = rng.normal(120.0, 20.0, n)
+    maximum = minimum + rng.normal(4.5, 1.0, n)
+    summary = {k: float(np.percentile(amplitude, q)) for k, q in
+               (("median", 50), ("low68", 16), ("high68", 84), ("low95", 2.5), ("high95", 97.5))}
+    peak = {k: float(np.percentile(maximum, q)) for k, q in
+            (("median", 50), ("low68", 16), ("high68", 84), ("low95", 2.5), ("high95", 97.5))}
+    as_of = 2061.3
+    result = {"as_of": as_of, "samples": {"amplitude": amplitude, "minimum_time": minimum, "maximum_time": maximum},
+              "forecast": {"amplitude": summary, "maximum_time": peak}}
+    fig = plot_forecast_fan(result, t, v)
+    ax = fig.axes[0]
+    lines = {line.get_label(): line for line in ax.get_lines()}
+    as_of_num = date2num(from_decimal_year(np.array([as_of]), True)[0])
+    raw_x = date2num(lines["sunspot number"].get_xdata())
+    assert raw_x.max() <= as_of_num
+    smooth = lines["13-month smoothed"]
+    x, y = date2num(smooth.get_xdata()), np.asarray(smooth.get_ydata(), float)
+    last = x[np.isfinite(y)].max()
+    assert as_of_num - last > 0.45 * 365.25  # days
+    assert ax.get_xlim()[1] >= date2num(from_decimal_year(np.array([peak["high95"]]), True)[0])
+    median_curve = np.asarray(lines["median at each date"].get_ydata(), float)
+    assert median_curve.max() <= summary["median"] + 1e-9  # what the caption says
+    assert "members peak at different times" in fig.texts[-1].get_text().replace("\n", " ")
