@@ -35,7 +35,8 @@ def measure(args, parser) -> int:
         failed = ds.attrs["failed_count"]
         if not args.quiet:
             _print_duplicates(ds)
-            print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; record written to {out}",
+            print(f"measured {len(rows)} of {len(files)} maps, {failed} failed; {_settings_words(ds)}; "
+                  f"record written to {out}",
                   file=sys.stderr)
         return EXIT_OK if failed == 0 else EXIT_SOME_FAILED
     ledger_path = Path(args.ledger) if args.ledger else default_ledger_path()
@@ -74,9 +75,18 @@ def measure(args, parser) -> int:
             if more:
                 print(f"  ... and {more} more", file=sys.stderr)
         print(f"measured {len(run.rows)} of {len(files)} maps ({run.measured - run.new_failures} new, "
-              f"{run.reused - len(known_failures)} from the ledger), {len(failures)} failed; "
+              f"{run.reused - len(known_failures)} from the ledger), {len(failures)} failed; {_settings_words(ds)}; "
               f"record written to {out}", file=sys.stderr)
     return EXIT_OK if not failures else EXIT_SOME_FAILED
+
+
+def _settings_words(ds) -> str:
+    """What the numbers are: the field read and, for line-of-sight maps, where B0 came from; the fill."""
+    field = ds.attrs.get("field", "")
+    words = f"field {field or 'radial'}"
+    if "los" in field and ds.attrs.get("b0_used"):
+        words += f" (B0 {ds.attrs['b0_used']})"
+    return words + f"; unseen polar parts filled: {ds.attrs.get('fill') or 'none'}"
 
 
 def _nothing_measured(count: int) -> int:
