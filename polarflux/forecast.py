@@ -229,16 +229,18 @@ def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed:
     }
 
 
-def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: str) -> dict | None:
+def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: str, t_ssn, v_ssn) -> dict | None:
     """The measured proxy at the last minimum when the cycle it began is rising, else None.
 
-    Rising: no maximum of the sunspot series after that minimum yet. The proxy is the
-    smoothed record's value at the minimum (``events["at_minima"]``); its relative error
-    combines the fill uncertainty there and the hemispheres' asymmetry (the proxy is not
-    better known than the two caps agree), at least 5 % (our choice).
+    Rising: the (13-month smoothed) sunspot series since that minimum has its highest value
+    within half a year (or one step of a coarser series) of its last value: the maximum has
+    not been passed. The proxy is the smoothed record's value at the minimum
+    (``events["at_minima"]``); its relative error combines the fill uncertainty there and the
+    hemispheres' asymmetry (the proxy is not better known than the two caps agree), at least
+    5 % (our choice).
     """
-    if any(m["time"] > last_minimum for m in events.get("maxima", [])):
-        return None
+    if _passed_peak(events, last_minimum, t_ssn, v_ssn) is not None:
+        return None  # past its maximum: the next cycle is the one to forecast
     at = [a for a in events.get("at_minima", []) if abs(a["time"] - last_minimum) < 1e-6]
     if not at or as_of_year <= last_minimum:
         return None
@@ -253,6 +255,29 @@ def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: s
     asymmetry = abs(north - south) / (north + south)
     values["relative_error"] = float(max(0.05, np.hypot(np.nan_to_num(fill), asymmetry)))
     return values
+
+
+def _passed_peak(events: dict, last_minimum: float, t_ssn, v_ssn) -> float | None:
+    """Time of the maximum the cycle begun at ``last_minimum`` has passed, or None while it rises.
+
+    Passed: a maximum in ``events`` after the minimum, or the (13-month smoothed) series since
+    the minimum has its highest value more than half a year (or one step of a coarser series)
+    before its last value.
+    """
+    from .timeseries import smooth_13_month
+
+    known = [m["time"] for m in events.get("maxima", []) if m["time"] > last_minimum]
+    if known:
+        return float(known[0])
+    t = np.asarray(t_ssn, dtype=np.float64)
+    v = np.asarray(v_ssn, dtype=np.float64)
+    cadence = float(np.median(np.diff(t))) if t.size > 1 else 1.0
+    smooth = smooth_13_month(v) if cadence < 2.0 / 12.0 else v
+    since = np.flatnonzero(np.isfinite(smooth) & (t >= last_minimum))
+    if since.size < 2:
+        return None
+    peak = since[np.argmax(smooth[since])]
+    return float(t[peak]) if t[since[-1]] - t[peak] > max(0.5, 1.01 * cadence) else None
 
 
 def _fill_relative_error(merged) -> float:
@@ -274,8 +299,9 @@ def _latest_profile(record, merged, as_of_ns, bases=("",)):
     from .maps import read_map
     from .measure import fill_polar_gaps
 
-    factors = {f["instrument"]: f["factor"] for f in json.loads(merged.attrs.get("scale_factors", "[]"))
-               if f["quantity"] == "polar"}
+    factors = {(f["instrument"], f["quantity"]): f["factor"]
+               for f in json.loads(merged.attrs.get("scale_factors", "[]"))}
+    fields = record["map_field"].values.astype(str) if "map_field" in record else None
     times = record["time"].values.astype("datetime64[ns]")
     for i in np.argsort(times)[::-1]:
         if times[i] > as_of_ns:
@@ -285,20 +311,47 @@ def _latest_profile(record, merged, as_of_ns, bases=("",)):
         if not found:
             continue
         path = found[0]
-        try:
-            m = fill_polar_gaps(read_map(path), float(record.attrs.get("cap_deg", 60.0)))
+        field = fields[i] if fields is not None and fields[i] in ("radial", "los") else "radial"
+        try:  # read as the record read it: line-of-sight maps converted to radial field
+            m = fill_polar_gaps(read_map(path, field=field), float(record.attrs.get("cap_deg", 60.0)))
         except PolarfluxError:
             continue
         values = np.where(np.isfinite(m.values), m.values, np.nan)
         profile = np.nanmean(values, axis=1)
         profile = np.where(np.isfinite(profile), profile, 0.0)
-        scale = factors.get(str(record["instrument"].values[i]), 1.0)
-        # the record's own measures of this map, on the reference scale: the projection is
-        # anchored to them so that it speaks the calibration's language (same fill, same grid)
-        measured = {"axial_dipole": abs(float(record["axial_dipole"].values[i])) * scale,
-                    "mean_field": 0.5 * float(np.sum(np.abs(record["mean_field"].values[i]))) * scale}
-        return profile * scale, m.lat_edges, path, times[i], measured
+        scale = factors.get((str(record["instrument"].values[i]), "polar"), 1.0)
+        return profile * scale, m.lat_edges, path, times[i], _anchor(merged, times[i])
     return None
+
+
+def _anchor(merged, when) -> dict:
+    """The proxies the projection is anchored to, as the calibration sees them, and their errors.
+
+    The merged record's viewing-corrected polar mean field (mean of north and minus south) and
+    axial dipole, each on the reference scale with its own factor (as the merge applied them),
+    smoothed as a straight line fitted to the last 13 rotations up to ``when`` and taken at
+    ``when`` (a centred 13-rotation mean, as at the calibration's minima, needs half a year of
+    later data). The errors are the line's standard error there.
+    """
+    from .timeseries import to_decimal_year
+
+    t, _ = to_decimal_year(merged["time"].values)
+    now = float(to_decimal_year(np.array([when], dtype="datetime64[ns]"))[0][0])
+    corrected = merged["mean_field_corrected"].values
+    series = {"mean_field": 0.5 * (corrected[:, 0] - corrected[:, 1]), "axial_dipole": merged["axial_dipole"].values}
+    out, errors = {}, {}
+    for name, y in series.items():
+        good = np.flatnonzero(np.isfinite(y) & (t <= now + 1e-9))[-13:]
+        if good.size < 4:
+            out[name], errors[name] = (abs(float(y[good[-1]])) if good.size else np.nan), 0.0
+            continue
+        design = np.column_stack([np.ones(good.size), t[good] - now])
+        beta, *_ = np.linalg.lstsq(design, y[good], rcond=None)
+        residual = y[good] - design @ beta
+        cov = np.linalg.inv(design.T @ design) * float(residual @ residual) / (good.size - 2)
+        out[name], errors[name] = abs(float(beta[0])), float(np.sqrt(cov[0, 0]))
+    out["errors"] = errors
+    return out
 
 
 def public_result(result: dict) -> dict:
@@ -367,7 +420,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     fill_relative = 0.0
-    rising = _rising_cycle(events, minima[-1], as_of_year, proxy)
+    rising = _rising_cycle(events, minima[-1], as_of_year, proxy, t_ssn, v_ssn)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
     if rising is not None:
         # the minimum has passed and the new cycle's maximum is not yet known: the cycle now rising is
@@ -390,12 +443,16 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
         if model_now[proxy] > 0 and measured[proxy] > 0:
             projection[proxy] = np.abs(projection[proxy]) * (measured[proxy] / model_now[proxy])
-        # the anchor is only as good as the fill of the caps' unseen part: each member's scale is drawn
+        # the anchor is only as good as the fill of the caps' unseen part and the smoothing of the last
+        # year's values: each member's scale is drawn from both
         fill_relative = _fill_relative_error(merged)
-        if fill_relative > 0:
-            spread = np.random.default_rng(seed + 2).normal(0.0, fill_relative, np.size(projection[proxy]))
+        anchor_relative = measured["errors"][proxy] / measured[proxy] if measured[proxy] > 0 else 0.0
+        relative = float(np.hypot(fill_relative, anchor_relative))
+        if relative > 0:
+            spread = np.random.default_rng(seed + 2).normal(0.0, relative, np.size(projection[proxy]))
             projection[proxy] = projection[proxy] * np.maximum(1.0 + spread, 0.1)
-        projection_kind = f"transport ensemble from {path}, anchored to its measured {proxy}"
+        projection_kind = (f"transport ensemble from {path}, anchored to the record's smoothed, viewing-corrected "
+                           f"{proxy} there ({100 * anchor_relative:.0f} % error)")
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
         values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
                         else np.nanmean(np.abs(merged["mean_field_corrected"].values), axis=1))
@@ -410,10 +467,10 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                  "text": f"the cycle that began at the minimum of {format_date(minima[-1])} (rising, its maximum "
                          "not yet in the sunspot series)"}
     else:
-        peaks = [m["time"] for m in events.get("maxima", []) if m["time"] > minima[-1]]
-        why = (f"past its maximum of {format_date(peaks[0])}" if peaks else
+        peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
+        why = (f"past its maximum of about {format_date(peak)}" if peak is not None else
                "too young: the smoothed polar field at its minimum is not measured yet")
-        phase = {"phase": "declining" if peaks else "minimum",
+        phase = {"phase": "declining" if peak is not None else "minimum",
                  "cycle_start": float(result["minimum_time"]["median"]),
                  "text": f"the next cycle, after the coming minimum (the cycle that began at {format_date(minima[-1])} "
                          f"is {why})"}

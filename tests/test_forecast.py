@@ -122,7 +122,9 @@ def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
         assert "transport ensemble" in result["projection"]["method"]
         projected = result["projection"]
         assert projected["north_at_minimum"]["median"] * projected["south_at_minimum"]["median"] < 0
-    assert inside / len(targets) >= 0.9, errors
+    # three forecasts cannot show a 95 % coverage; what they can show: with true 95 % ranges, two or
+    # more misses out of three happen with probability 0.7 % (binomial), so that fails
+    assert len(targets) - inside <= 1, errors
 
 
 @pytest.mark.xfail(strict=True, reason="the projection leaves out the declining cycle's late emergence "
@@ -218,3 +220,28 @@ def test_after_a_minimum_the_rising_cycle_is_forecast_from_its_measured_minimum(
     amplitude = result["forecast"]["amplitude"]
     assert amplitude["low95"] <= cycle["amplitude"] <= amplitude["high95"]
     assert result["forecast"]["maximum_time"]["median"] > as_of
+
+
+def test_anchor_is_the_last_years_line_at_the_map_time_with_its_standard_error():
+    # reference: statsmodels OLS of the last 13 rotations on time, its prediction of the mean at the
+    # map's time (summary_frame mean and mean_se)
+    import xarray as xr
+
+    from polarflux.forecast import _anchor
+
+    rng = np.random.default_rng(3)
+    times = np.datetime64("2050-01-15") + np.arange(40) * np.timedelta64(27 * 86400 + 6 * 3600, "s")
+    t = pf.events.to_decimal_year(times.astype("datetime64[ns]"))[0]
+    dipole = 1.0 + 0.3 * (t - t[0]) + rng.normal(0, 0.05, t.size)
+    north = 3.0 + 0.5 * (t - t[0]) + rng.normal(0, 0.2, t.size)
+    merged = xr.Dataset({"axial_dipole": (("time",), dipole),
+                         "mean_field_corrected": (("time", "hemisphere"), np.c_[north, -north])},
+                        coords={"time": times.astype("datetime64[ns]")})
+    when = times[-5].astype("datetime64[ns]")
+    got = _anchor(merged, when)
+    use = slice(40 - 5 - 12, 40 - 4)  # the 13 rotations up to the map
+    for name, y in (("axial_dipole", dipole), ("mean_field", north)):
+        x = sm.add_constant(t[use] - t[-5])
+        frame = sm.OLS(y[use], x).fit().get_prediction(np.array([[1.0, 0.0]])).summary_frame()
+        assert got[name] == pytest.approx(abs(frame["mean"].iloc[0]), rel=1e-10)
+        assert got["errors"][name] == pytest.approx(frame["mean_se"].iloc[0], rel=1e-8)

@@ -176,18 +176,20 @@ def test_garbage_after_each_date_changes_nothing(world, tiny_scenario):
     garbage_map = folder / "garbage.fits"
     if not garbage_map.exists():
         pf.maps.write_map(pf.SynopticMap.from_array(np.full((60, 120), 5e3), instrument="TEST"), garbage_map)
-    for date in (2046.3, 2051.62):
+    kinds = []
+    for date in (2046.3, 2051.62):  # a cycle rising from its measured minimum, and one projected by transport
         bad, tb, vb = _garbage(record, t, v, date)
         bad["source"].values[bad["source"].values == "garbage.fits"] = str(garbage_map)
         a = hindcast(record, (t, v), [date], members=40, seed=3)
         b = hindcast(bad, (tb, vb), [date], members=40, seed=3)
         assert a["status"].values[0] == "ok", a["reason"].values[0]
-        assert "transport" in a["projection"].values[0]
+        kinds.append(str(a["projection"].values[0]))
         _same(a, b, FORECAST_COLUMNS)  # the outcome and climatology come from the whole series: they may differ
         # the check can fail: garbage in the year before the date does change the forecast
         spoilt, ts, vs = _garbage(record, t, v, date, before=True)
         worse = hindcast(spoilt, (ts, vs), [date], members=40, seed=3)
         assert worse["median"].values[0] != a["median"].values[0] or worse["status"].values[0] != "ok"
+    assert "measured at the minimum" in kinds[0] and "transport" in kinds[1]  # both paths were tried
 
 
 # --------------------------------------------------------------------------- dates and failures
