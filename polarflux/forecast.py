@@ -139,7 +139,7 @@ def read_calibration(path: str | os.PathLike) -> list[dict]:
 
 def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, members: int = 300,
                        seed: int = 0, nlat: int = 180, cap_latitude: float = 60.0,
-                       cycle_length=(11.0, 0.8)) -> dict:
+                       cycle_length=(11.0, 0.8), earliest: float | None = None) -> dict:
     """Evolve a latitude profile to each member's date of minimum with an axisymmetric ensemble.
 
     Parameters
@@ -151,6 +151,11 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
     members, seed : int
     cycle_length : (mean, sd)
         Years from the last minimum to the next.
+    earliest : float, optional
+        The earliest the coming minimum can be (decimal year): the normal distribution of the
+        cycle length is truncated there (a minimum earlier than that would already be
+        confirmed by the data). Default: one rotation after ``now``. Members whose minimum is
+        before ``now`` keep the field of ``now``.
 
     Returns
     -------
@@ -167,9 +172,16 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
     eta = rng.uniform(250.0, 600.0, members)
     speed = rng.uniform(8.0, 15.0, members)
     tau = np.where(rng.random(members) < 0.25, np.inf, rng.uniform(5.0, 10.0, members))
-    minimum = last_minimum + rng.normal(cycle_length[0], cycle_length[1], members)
-    minimum = np.maximum(minimum, now + 27.2753 / 365.25)
-    horizon = float(minimum.max() - now)
+    from scipy.stats import truncnorm
+
+    low = now + 27.2753 / 365.25 if earliest is None else float(earliest)
+    mean, sd = cycle_length
+    a = (low - last_minimum - mean) / sd
+    if a > 8.0:  # far past the usual length: within a rotation or so of the bound
+        minimum = low + rng.exponential(sd / a, members)
+    else:
+        minimum = last_minimum + mean + sd * truncnorm.ppf(rng.uniform(0.0, 1.0, members), a, np.inf)
+    horizon = max(float(minimum.max() - now), 27.2753 / 365.25)
     edges, _ = model_grid(nlat, 1)
     start = regrid_conservative(np.asarray(profile, dtype=np.float64)[:, None], lat_edges, [0.0, 360.0],
                                 edges, [0.0, 360.0])[:, 0]
@@ -392,7 +404,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     """
     from .calibration import merge_instruments
     from .cutoff import cut_record, cut_sunspots, data_end
-    from .events import from_decimal_year, record_events, to_decimal_year
+    from .events import CONFIRM_YEARS, from_decimal_year, record_events, to_decimal_year
     from .timeseries import format_date
 
     t_ssn = np.asarray(sunspot_times, dtype=np.float64)
@@ -436,8 +448,11 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     elif latest is not None:
         profile, edges, path, when, measured = latest
         now = float(to_decimal_year(np.array([when]))[0][0])
+        # the coming minimum is not confirmed yet: it is after the forecast date less the time the
+        # series needs to confirm one (half the 13-month smoothing window, then CONFIRM_YEARS of rise)
+        earliest = max(minima[-1] + 1.0, as_of_year - (0.5 + CONFIRM_YEARS))
         projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
-                                        cap_latitude=float(record.attrs.get("cap_deg", 60.0)))
+                                        cap_latitude=float(record.attrs.get("cap_deg", 60.0)), earliest=earliest)
         start = projection["now"]
         model_now = {"axial_dipole": abs(start["axial_dipole"]),
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}

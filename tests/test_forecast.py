@@ -245,3 +245,22 @@ def test_anchor_is_the_last_years_line_at_the_map_time_with_its_standard_error()
         frame = sm.OLS(y[use], x).fit().get_prediction(np.array([[1.0, 0.0]])).summary_frame()
         assert got[name] == pytest.approx(abs(frame["mean"].iloc[0]), rel=1e-10)
         assert got["errors"][name] == pytest.approx(frame["mean_se"].iloc[0], rel=1e-8)
+
+
+def test_an_unconfirmed_minimum_may_lie_behind_the_date_but_not_before_it_could_be_confirmed():
+    # the cycle-length prior N(11, 0.8) truncated at the earliest possible minimum; members whose
+    # minimum has passed keep today's field (a normal truncated at a, reference: scipy.stats.truncnorm)
+    from scipy.stats import truncnorm
+
+    from polarflux.forecast import project_to_minimum
+
+    lat_edges = np.linspace(-90, 90, 91)
+    profile = 8.0 * np.sin(np.deg2rad(0.5 * (lat_edges[:-1] + lat_edges[1:]))) ** 7
+    now, last = 2061.6, 2050.4
+    out = project_to_minimum(profile, lat_edges, now, last, members=400, seed=1, nlat=90, earliest=now - 1.0)
+    assert out["minimum"].min() >= now - 1.0
+    a = (now - 1.0 - last - 11.0) / 0.8
+    expected = last + 11.0 + 0.8 * truncnorm.median(a, np.inf)
+    assert np.median(out["minimum"]) == pytest.approx(expected, abs=0.08)
+    past = out["minimum"] <= now
+    assert past.any() and np.allclose(out["axial_dipole"][past], out["now"]["axial_dipole"], rtol=1e-9)
