@@ -16,15 +16,18 @@ average (polar gaps filled as ``measure_caps(fill="profile")`` does, scaled onto
 the record's reference instrument) is evolved by an ensemble of axisymmetric
 surface flux transport models (:class:`~polarflux.transport.TransportEnsemble`)
 to each member's date of minimum. The projected proxy is scaled by the ratio of
-the map's measured proxy in the record to the model's proxy at the start, so that
-it carries the record's conventions (fill, grid, hidden pole) that the
-calibration was made with. Members draw the diffusivity (250-600 km^2/s),
+the anchor (the merged record's viewing-corrected proxy, smoothed by a line over
+the last 13 rotations, at the map's time) to the model's proxy at the start, so
+that it carries the record's conventions (fill, grid, hidden pole, scale factors)
+that the calibration was made with. After a minimum, while the new cycle rises,
+that cycle is forecast from the proxy measured at its minimum instead. Members draw the diffusivity (250-600 km^2/s),
 the peak flow speed (8-15 m/s), the decay time (5-10 years, or none) and the date
-of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years, not
-before the next rotation). The flux the declining cycle will still emerge is not
-modelled (our documented choice): late-cycle regions emerge at low latitudes,
-where much of their flux cancels across the equator, and an emergence model fitted
-to a cycle in decline adds its own large uncertainty.
+of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years,
+truncated at the earliest date the minimum can have without being confirmed yet).
+The flux the declining cycle will still emerge is not modelled yet: the projection
+is low by what it would add (late low-latitude regions build the dipole because part
+of their leading flux cancels across the equator), most for forecasts made 3-4 years
+before the minimum.
 
 Forecast
 --------
