@@ -136,6 +136,22 @@ def test_butterfly_of_a_transport_run(tmp_path):
     run.to_netcdf(path)
     assert main(["plot", "butterfly", str(path), "--out", str(tmp_path / "b.png")]) == 0
     assert (tmp_path / "b.png").stat().st_size > 5_000
+    # read back what is drawn: one cell per (row, step) holding the run's longitude average, rows
+    # placed at the sines of the run's latitude edges (half-way between its row centres, +-90 at the ends)
+    from matplotlib.collections import QuadMesh
+
+    from polarflux.cli._commands import _run_butterfly
+
+    fig = _run_butterfly(path, "test")
+    (mesh,) = [c for c in fig.axes[0].collections if isinstance(c, QuadMesh)]
+    drawn = np.ma.getdata(mesh.get_array()).reshape(run.sizes["lat"], -1)
+    expected = run["br"].values.mean(axis=-1).T
+    assert drawn.shape == expected.shape  # a regular run: no gap columns
+    np.testing.assert_allclose(drawn, expected, rtol=1e-12)
+    lat = run["lat"].values
+    edges = np.concatenate([[-90.0], 0.5 * (lat[:-1] + lat[1:]), [90.0]])
+    y = mesh.get_coordinates()[:, 0, 1]
+    np.testing.assert_allclose(y, np.sin(np.deg2rad(edges)), atol=1e-12)
 
 
 def test_command_reference_is_generated_from_the_parser():
