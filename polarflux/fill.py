@@ -71,18 +71,23 @@ def band_edges(cap_deg: float) -> np.ndarray:
     return edges
 
 
+def _band_sines(edges: np.ndarray) -> np.ndarray:
+    """sin of the band edges, exactly 1 at the pole."""
+    s = np.sin(np.deg2rad(edges))
+    s[-1] = 1.0
+    return s
+
+
 def band_areas(cap_deg: float) -> np.ndarray:
     """Area of each band over the cap's area (they sum to 1)."""
-    s = np.sin(np.deg2rad(band_edges(cap_deg)))
-    s[-1] = 1.0
+    s = _band_sines(band_edges(cap_deg))
     return np.diff(s) / (1.0 - s[0])
 
 
 def _overlap(lat_edges: np.ndarray, edges: np.ndarray, hemisphere: str) -> np.ndarray:
     """(nbands, nrows): length in sine latitude shared by each band and each map row."""
     s_rows = sine_edges(lat_edges)
-    s_band = np.sin(np.deg2rad(edges))
-    s_band[-1] = 1.0
+    s_band = _band_sines(edges)
     if hemisphere == "south":
         s_band = -s_band[::-1]
     lo = np.maximum(s_band[:-1, None], s_rows[None, :-1])
@@ -239,8 +244,7 @@ def temporal_fill(times, mean, coverage, cap_deg: float, abs_mean=None) -> dict:
             out["error"] = error
             # dipole: (3 / 4 pi) 2 pi B integral of sin over the band = 1.5 B (s1^2 - s0^2) / 2 per unit of
             # the band's seen-or-not fraction; unseen fraction of a band = 1 - coverage
-            s = np.sin(np.deg2rad(edges))
-            s[-1] = 1.0
+            s = _band_sines(edges)
             weight = 0.75 * (s[1:] ** 2 - s[:-1] ** 2)
             out["dipole_added"] = np.nansum((1.0 - coverage) * fill * weight[None, :], axis=1)
     return out

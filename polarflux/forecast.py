@@ -244,17 +244,17 @@ def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed:
     }
 
 
-def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: str, t_ssn, v_ssn) -> dict | None:
+def _rising_cycle(events: dict, last_minimum: float, as_of_year: float, proxy: str,
+                  passed_peak: float | None) -> dict | None:
     """The measured proxy at the last minimum when the cycle it began is rising, else None.
 
-    Rising: the (13-month smoothed) sunspot series since that minimum has its highest value
-    within half a year (or one step of a coarser series) of its last value: the maximum has
-    not been passed. The proxy is the smoothed record's value at the minimum
+    Rising: the cycle has not passed its maximum (``passed_peak`` is None, see
+    :func:`_passed_peak`). The proxy is the smoothed record's value at the minimum
     (``events["at_minima"]``); its relative error combines the fill uncertainty there and the
     hemispheres' asymmetry (the proxy is not better known than the two caps agree), at least
     5 % (our choice).
     """
-    if _passed_peak(events, last_minimum, t_ssn, v_ssn) is not None:
+    if passed_peak is not None:
         return None  # past its maximum: the next cycle is the one to forecast
     at = [a for a in events.get("at_minima", []) if abs(a["time"] - last_minimum) < 1e-6]
     if not at or as_of_year <= last_minimum:
@@ -435,7 +435,8 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     fill_relative = 0.0
-    rising = _rising_cycle(events, minima[-1], as_of_year, proxy, t_ssn, v_ssn)
+    peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
+    rising = _rising_cycle(events, minima[-1], as_of_year, proxy, peak)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
     if rising is not None:
         # the minimum has passed and the new cycle's maximum is not yet known: the cycle now rising is
@@ -485,7 +486,6 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                  "text": f"the cycle that began at the minimum of {format_date(minima[-1])} (rising, its maximum "
                          "not yet in the sunspot series)"}
     else:
-        peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
         why = (f"past its maximum of about {format_date(peak)}" if peak is not None else
                "too young: the smoothed polar field at its minimum is not measured yet")
         phase = {"phase": "declining" if peak is not None else "minimum",

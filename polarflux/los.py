@@ -44,7 +44,7 @@ import numpy as np
 
 from .errors import MapFormatError
 
-__all__ = ["column_b0", "los_to_radial", "convert_to_radial", "field_in_header", "FIELDS", "LOS_MAX_FACTOR"]
+__all__ = ["column_b0", "los_to_radial", "field_in_header", "FIELDS", "LOS_MAX_FACTOR"]
 
 #: What a map holds: "auto" reads the header (:func:`field_in_header`), "radial" and "los" say it.
 FIELDS = ("auto", "radial", "los")
@@ -186,15 +186,3 @@ def field_in_header(header: Mapping) -> str:
     """"los" when the header's ``MAPFIELD`` says line of sight ("LOS", "LINE-OF-SIGHT", "BLOS"), else "radial"."""
     value = str(header.get("MAPFIELD", "") or "").strip().upper()
     return "los" if value in _LOS_WORDS else "radial"
-
-
-def convert_to_radial(m, max_factor: float = LOS_MAX_FACTOR) -> None:
-    """Turn a map read as radial but holding line-of-sight field into radial field, in place.
-
-    Sets ``m.los_b0`` and ``m.los_b0_how`` (see :func:`column_b0`).
-    """
-    b0, how = column_b0(m.header, m.lon, m.carrington_rotation, m.time, m.source or "map")
-    values = m.br
-    los_to_radial(values, m.lat, b0, max_factor, lat_edges=m.lat_edges)
-    m.br = values
-    m.los_b0, m.los_b0_how = b0, how

@@ -49,7 +49,7 @@ from ._pixels import (
     refusals,
 )
 from .errors import MapFormatError
-from .los import LOS_MAX_FACTOR
+from .los import FIELDS, LOS_MAX_FACTOR, field_in_header
 
 __all__ = ["SynopticMap", "read_map", "read_planes", "count_planes", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
 
@@ -271,10 +271,10 @@ def read_map(
         A FITS file (plain, gzip-compressed or tile-compressed; the first image
         HDU holding 2-D or more data is used), or a sunpy map whose ``meta``
         follows the same header conventions.
-    field : {"radial", "los"}
-        "radial": the map holds the radial field. "los": it holds line-of-sight
-        field, converted to radial by dividing by cos(latitude - B0) (see
-        :mod:`polarflux.los`), the factor capped at ``los_max_factor``.
+    field : {"radial", "los", "auto"}
+        "radial": radial field. "los": line-of-sight field, converted to radial by
+        dividing by cos(latitude - B0) (see :mod:`polarflux.los`), the factor capped
+        at ``los_max_factor``. "auto": "los" where the header has MAPFIELD = 'LOS'.
     plane : int, optional
         For a cube (3-D or more: a stack of realizations), the index of the map
         to read, counted over the planes in file order (the slowest FITS axis
@@ -321,7 +321,7 @@ def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MA
     ----------
     path : str or os.PathLike
         A FITS file, as for :func:`read_map`. A 2-D map yields itself once.
-    field : {"radial", "los"}
+    field : {"radial", "los", "auto"}
         As for :func:`read_map`.
     los_max_factor : float
         As for :func:`read_map`.
@@ -365,8 +365,8 @@ def count_planes(path: Any) -> int:
 
 
 def _check_field(field: str, path: Any) -> None:
-    if field not in ("radial", "los"):
-        raise MapFormatError(f"{path}: unknown field {field!r}; expected 'radial' or 'los'")
+    if field not in FIELDS:
+        raise MapFormatError(f"{path}: unknown field {field!r}; expected one of {', '.join(FIELDS)}")
 
 
 class _ImageFile:
@@ -522,7 +522,7 @@ def _build_map(
         cache["time"], cache["rotation"] = _time_and_rotation(header, lon_axis, source)
     time, rotation = cache["time"], cache["rotation"]
     los_b0, los_b0_how = None, ""
-    if field == "los":
+    if field == "los" or field == "auto" and field_in_header(header) == "los":
         from .los import column_b0, los_to_radial
 
         if "los_b0" not in cache:

@@ -53,7 +53,25 @@ class Prediction:
 
 
 @dataclass
-class PrecursorFit:
+class _Fit:
+    """What both laws hold: the calibration pairs, coefficients, scatter and leave-one-out errors."""
+
+    proxy: np.ndarray
+    amplitude: np.ndarray
+    coefficients: np.ndarray
+    standard_errors: np.ndarray
+    residual_sd: float
+    dof: int
+    loo_errors: np.ndarray
+    labels: list = field(default_factory=list)
+
+    @property
+    def loo_rms(self) -> float:
+        return float(np.sqrt(np.mean(self.loo_errors**2)))
+
+
+@dataclass
+class PrecursorFit(_Fit):
     """Ordinary least squares of next-cycle amplitude on a polar proxy at minimum.
 
     Attributes
@@ -69,15 +87,7 @@ class PrecursorFit:
         Leave-one-out hindcast errors (predicted minus actual), one per cycle.
     """
 
-    proxy: np.ndarray
-    amplitude: np.ndarray
-    through_origin: bool
-    coefficients: np.ndarray
-    standard_errors: np.ndarray
-    residual_sd: float
-    dof: int
-    loo_errors: np.ndarray
-    labels: list = field(default_factory=list)
+    through_origin: bool = False
     _inverse: np.ndarray = field(default=None, repr=False)
 
     @property
@@ -137,9 +147,6 @@ class PrecursorFit:
         p = self.predict(x)
         return p.median + p.se * rng.standard_t(self.dof, size=np.shape(p.median))
 
-    @property
-    def loo_rms(self) -> float:
-        return float(np.sqrt(np.mean(self.loo_errors**2)))
 
 
 def _ols(x: np.ndarray, y: np.ndarray, through_origin: bool):
@@ -196,11 +203,11 @@ def fit_precursor(proxy, amplitude, through_origin: bool = False, labels=None, l
         keep = np.arange(x.size) != i
         b, *_ = _ols(x[keep], y[keep], through_origin)
         loo[i] = (b[0] * x[i] if through_origin else b[0] + b[1] * x[i]) - y[i]
-    return PrecursorFit(x, y, through_origin, beta, se, s, dof, loo, list(labels or []), inverse)
+    return PrecursorFit(x, y, beta, se, s, dof, loo, list(labels or []), through_origin=through_origin, _inverse=inverse)
 
 
 @dataclass
-class ProportionalFit:
+class ProportionalFit(_Fit):
     """ln amplitude = ln k + ln |proxy| + e: the proportional law in log space (see the module notes).
 
     Attributes
@@ -217,14 +224,6 @@ class ProportionalFit:
         Leave-one-out hindcast errors (predicted median minus actual), one per cycle.
     """
 
-    proxy: np.ndarray
-    amplitude: np.ndarray
-    coefficients: np.ndarray
-    standard_errors: np.ndarray
-    residual_sd: float
-    dof: int
-    loo_errors: np.ndarray
-    labels: list = field(default_factory=list)
     law = "proportional"
     through_origin = True
 
@@ -262,9 +261,6 @@ class ProportionalFit:
         p = self.predict(x)
         return p.median * np.exp(p.se * rng.standard_t(self.dof, size=np.shape(p.median)))
 
-    @property
-    def loo_rms(self) -> float:
-        return float(np.sqrt(np.mean(self.loo_errors**2)))
 
 
 def _proportional(x: np.ndarray, y: np.ndarray, labels) -> ProportionalFit:

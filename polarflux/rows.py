@@ -16,7 +16,6 @@ import numpy as np
 from .errors import MapFormatError, SettingsError
 from .fill import DEFAULT_FILL, band_fill_error, cap_bands
 from .geometry import HEMISPHERES
-from .los import convert_to_radial, field_in_header
 from .maps import quiet_time_warnings, read_map, read_planes
 from .measure import axial_dipole, measure_caps
 
@@ -34,12 +33,6 @@ def check_plane(plane) -> int | str | None:
     if isinstance(plane, bool) or not isinstance(plane, (int, np.integer)) or plane < 0:
         raise SettingsError(f"plane={plane!r}: expected a plane number (0, 1, ...) or 'all'")
     return int(plane)
-
-
-def _as_radial(m, field: str):
-    if field == "auto" and field_in_header(m.header) == "los":
-        convert_to_radial(m)
-    return m
 
 
 def _map_row(m, path: str, cap_latitude: float, fill: str) -> dict:
@@ -121,11 +114,7 @@ def measure_file(path: str, cap_latitude: float = 60.0, fill: str = DEFAULT_FILL
         plane number other than 0.
     """
     plane = check_plane(plane)
-    read_field = "radial" if field == "auto" else field
     if plane == PLANES_ALL:
-        rows = [_map_row(_as_radial(m, field), path, cap_latitude, fill) for m in read_planes(path, field=read_field)]
-        if len(rows) == 1:
-            return rows[0]
-        return _combine(rows, path)
-    m = _as_radial(read_map(path, field=read_field, plane=plane), field)
-    return _map_row(m, path, cap_latitude, fill)
+        rows = [_map_row(m, path, cap_latitude, fill) for m in read_planes(path, field=field)]
+        return rows[0] if len(rows) == 1 else _combine(rows, path)
+    return _map_row(read_map(path, field=field, plane=plane), path, cap_latitude, fill)
