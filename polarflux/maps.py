@@ -26,41 +26,15 @@ import numpy as np
 from astropy import units as u
 from astropy.time import Time
 
-from . import _pixels
-from ._header import (
-    _gauss_per_unit,
-    _LatAxis,
-    _latitude_axis,
-    _LonAxis,
-    _longitude_axis,
-    _map_time,
-    _rotation_number,
-    parse_header_time,
-    quiet_time_warnings,
-)
-from ._pixels import (
-    RowStatistics,
-    _row_statistics,
-    astropy_image,
-    first_line,
-    inherit,
-    oriented_copy,
-    plane_index,
-    refusals,
-)
+from ._header import parse_header_time, quiet_time_warnings
+from ._pixels import RowStatistics, _row_statistics, plane_index
+from ._reader import PLAUSIBLE_MAX_G, ImageFile, MapParts, parts_from_array
 from .errors import MapFormatError
-from .los import FIELDS, LOS_MAX_FACTOR, field_in_header
+from .los import FIELDS, LOS_MAX_FACTOR
 
 __all__ = ["SynopticMap", "read_map", "read_planes", "count_planes", "write_map", "map_header", "parse_header_time", "quiet_time_warnings", "GRIDS", "LOS_MAX_FACTOR", "PLAUSIBLE_MAX_G"]
 
 GRIDS = ("sine-latitude", "equal-angle")
-
-#: Plausibility limit of a synoptic map's field, Gauss: far above any photospheric field
-#: (sunspot umbrae reach a few kG), so a map beyond it carries a unit or scaling error.
-PLAUSIBLE_MAX_G = 1e5
-
-
-_INSTRUMENT_KEYS = ("INSTRUME", "TELESCOP", "ORIGIN")
 
 
 class SynopticMap:
@@ -307,11 +281,10 @@ def read_map(
     if hasattr(path, "meta") and hasattr(path, "data"):
         header = {str(k).upper(): v for k, v in dict(path.meta).items()}
         source = str(header.get("FILENAME", "") or "sunpy map")
-        values, stats, lat_axis, lon_axis = _prepare(header, np.asarray(path.data), plane, source)
-        return _build_map(values, stats, header, lat_axis, lon_axis, source, field, los_max_factor)
-    with _ImageFile(os.fspath(path)) as image:
+        return _assemble(parts_from_array(header, np.asarray(path.data), plane, source, field, los_max_factor))
+    with ImageFile(os.fspath(path)) as image:
         index = plane_index(image.shape, plane, image.source)
-        return image.read(index, field, los_max_factor, verify=True)
+        return _assemble(image.read(index, field, los_max_factor, verify=True))
 
 
 def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MAX_FACTOR) -> Iterator[SynopticMap]:
@@ -343,10 +316,10 @@ def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MA
 
     """
     _check_field(field, path)
-    with _ImageFile(os.fspath(path)) as image:
+    with ImageFile(os.fspath(path)) as image:
         image.verify_all()
         for index in range(image.nplanes) if len(image.shape) > 2 else (None,):
-            yield image.read(index, field, los_max_factor, verify=False)
+            yield _assemble(image.read(index, field, los_max_factor, verify=False))
 
 
 def count_planes(path: Any) -> int:
@@ -360,7 +333,7 @@ def count_planes(path: Any) -> int:
         Naming the file, when it is not FITS, has no 2-D image, or is cut short
         inside a header.
     """
-    with _ImageFile(os.fspath(path), pixels=False) as image:
+    with ImageFile(os.fspath(path), pixels=False) as image:
         return image.nplanes
 
 
@@ -369,205 +342,26 @@ def _check_field(field: str, path: Any) -> None:
         raise MapFormatError(f"{path}: unknown field {field!r}; expected one of {', '.join(FIELDS)}")
 
 
-class _ImageFile:
-    """The first image of a FITS file: header, axes, and reading of its planes.
-
-    Plain and gzip files are walked by :mod:`polarflux._pixels` and each plane
-    read once from the file; tile-compressed (and bzip2/zip) files are decoded
-    by astropy, with its CHECKSUM/DATASUM verification. Keywords of a data-less
-    primary header apply to an image in an extension unless it says
-    ``INHERIT = F`` (the FITS keyword-inheritance convention), so a product
-    that keeps its times and instrument in the primary header is read whole.
-    """
-
-    def __init__(self, source: str, pixels: bool = True) -> None:
-        self.source = source
-        self._file = None
-        self._decoded: np.ndarray | None = None
-        self._meta: dict = {}  # time, rotation, column B0: the same for every plane
-        if os.path.isdir(source):
-            raise MapFormatError(f"{source}: is a directory, not a FITS file")
-        try:
-            size = os.path.getsize(source)
-        except OSError as exc:
-            raise MapFormatError(f"{source}: cannot open ({exc.strerror or exc})") from None
-        if size == 0:
-            raise MapFormatError(f"{source}: empty file")
-        try:
-            self._open(pixels)
-        except BaseException:
-            self.close()
-            raise
-
-    def _open(self, pixels: bool) -> None:
-        source = self.source
-        with refusals(source):
-            self._file = _pixels.open_fits(source)
-            found = _pixels.find_image(self._file) if self._file is not None else "astropy"
-            if found is None:
-                raise MapFormatError(f"{source}: no 2-D image in any HDU")
-            if isinstance(found, str):  # tile-compressed, bzip2 or zip: astropy decodes
-                self.close()
-                header, primary, self._decoded, shape = astropy_image(source, pixels)
-                self.image = None
-            else:
-                self.image = found
-                header, primary, shape = found.header, found.primary, found.shape
-                if not _pixels.is_gzip(self._file) and os.path.getsize(source) < found.offset + found.nbytes:
-                    raise _pixels.truncated(source, found, os.path.getsize(source))
-        self.header = inherit(header, primary)
-        self.shape = tuple(int(n) for n in shape)
-        self.nplanes = int(np.prod(self.shape[:-2]))
-        self.lat_axis = _latitude_axis(self.header, self.shape[-2], source)
-        self.lon_axis = _longitude_axis(self.header, self.shape[-1], source)
-        if self.lat_axis.projection != self.lon_axis.projection:
-            raise MapFormatError(
-                f"{source}: longitude and latitude axes disagree on the projection "
-                f"({self.header.get('CTYPE1')!r}, {self.header.get('CTYPE2')!r})"
-            )
-
-    def __enter__(self) -> _ImageFile:
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.close()
-
-    def close(self) -> None:
-        if self._file is not None:
-            self._file.close()
-            self._file = None
-
-    def verify_all(self) -> None:
-        """Check DATASUM/CHECKSUM over the whole data unit now (when the header has them)."""
-        if self.image is not None and _pixels.wants_checksum(self.image):
-            with refusals(self.source):
-                _pixels.check_sums(self.image, _pixels.data_sum(self._file, self.image, self.source), self.source)
-
-    def read(self, index: int | None, field: str, los_max_factor: float, verify: bool) -> SynopticMap:
-        """Map ``index`` (None: the 2-D image) as a SynopticMap, its pixels read once."""
-        source, lat_axis, lon_axis = self.source, self.lat_axis, self.lon_axis
-        if "time" not in self._meta:  # header work first, while the interpreter's data are still in cache
-            self._meta["time"], self._meta["rotation"] = _time_and_rotation(self.header, lon_axis, source)
-        if self.image is None:
-            data = self._decoded.reshape((-1,) + self.shape[-2:])[index or 0]
-            values, stats = oriented_copy(data, self.header, lat_axis, lon_axis)
-        else:
-            image = self.image
-            layout = _pixels.Layout(lat_axis.flip, lon_axis.flip, lon_axis.drop_last, lon_axis.roll)
-            with refusals(source):
-                scaling = _pixels.scaling_for(image.bitpix, self.header)
-                values, stats = _pixels.read_plane(
-                    self._file, image, index or 0, layout, scaling, source,
-                    verify=verify and _pixels.wants_checksum(image),
-                )
-        label = source if index is None else f"{source} (plane {index})"  # what a refusal names
-        m = _build_map(values, stats, self.header, lat_axis, lon_axis, label, field, los_max_factor, self._meta)
-        m.source, m.plane = source, index
-        return m
-
-
-def _prepare(header: Mapping, data: np.ndarray, plane: int | None, source: str):
-    """Select the plane of in-memory pixels, read the axes from the header, and copy the pixels out in map order."""
-    if data.ndim < 2:
-        raise MapFormatError(f"{source}: no 2-D image (data has {data.ndim} dimension(s))")
-    index = plane_index(data.shape, plane, source)
-    if index is not None:
-        data = data.reshape((-1,) + data.shape[-2:])[index]
-    nlat, nlon = data.shape
-    lat_axis = _latitude_axis(header, nlat, source)
-    lon_axis = _longitude_axis(header, nlon, source)
-    if lat_axis.projection != lon_axis.projection:
-        raise MapFormatError(
-            f"{source}: longitude and latitude axes disagree on the projection "
-            f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
-        )
-    return (*oriented_copy(data, header, lat_axis, lon_axis), lat_axis, lon_axis)
-
-
-def _build_map(
-    values: np.ndarray,
-    stats: RowStatistics,
-    header: Mapping,
-    lat_axis: _LatAxis,
-    lon_axis: _LonAxis,
-    source: str,
-    field: str,
-    los_max_factor: float,
-    cache: dict | None = None,
-) -> SynopticMap:
-    """The map of oriented pixels: unit, plausibility, time, rotation, instrument, line-of-sight conversion.
-
-    ``cache`` keeps what depends on the header only (time, rotation, column B0)
-    between the planes of one cube.
-    """
-    factor = _gauss_per_unit(header, source)
-    if stats.counts.sum() == 0:
-        raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
-    # Plausibility: a row whose sum exceeds the limit times its length holds an absurd value.
-    suspicious = np.flatnonzero(~(np.abs(stats.sums * factor) <= PLAUSIBLE_MAX_G * values.shape[1]))
-    if suspicious.size:
-        peak = float(np.nanmax(np.abs(values[suspicious]))) * abs(factor)
-        if not peak <= PLAUSIBLE_MAX_G:
-            raise MapFormatError(
-                f"{source}: implausible field values up to {peak:.3g} G (plausibility limit {PLAUSIBLE_MAX_G:.0e} G; "
-                "a unit or scaling error?)"
-            )
-    if (factor != 1.0 or field == "los") and values.dtype != np.float64:
-        values = values.astype(np.float64)  # scaled pixels keep full precision
-    if factor != 1.0:
-        values *= factor
-        stats.scale(values, factor)
-    cache = {} if cache is None else cache
-    if "time" not in cache:
-        cache["time"], cache["rotation"] = _time_and_rotation(header, lon_axis, source)
-    time, rotation = cache["time"], cache["rotation"]
-    los_b0, los_b0_how = None, ""
-    if field == "los" or field == "auto" and field_in_header(header) == "los":
-        from .los import column_b0, los_to_radial
-
-        if "los_b0" not in cache:
-            cache["los_b0"] = column_b0(header, lon_axis.centres, rotation, time, source)
-        los_b0, los_b0_how = cache["los_b0"]
-        los_to_radial(values, lat_axis.centres, los_b0, los_max_factor, lat_edges=lat_axis.edges)
-        stats = _row_statistics(values)
-    instrument = ""
-    for key in _INSTRUMENT_KEYS:
-        if str(header.get(key, "")).strip():
-            instrument = str(header[key]).strip()
-            break
+def _assemble(parts: MapParts) -> SynopticMap:
+    """The map of what the reader found (its pixels handed over, not copied)."""
+    lat_axis, lon_axis = parts.lat_axis, parts.lon_axis
     m = SynopticMap(
-        br=values,
+        br=parts.values,
         lat_edges=lat_axis.edges,
         lon_edges=lon_axis.edges,
-        carrington_rotation=rotation,
-        time=time,
-        instrument=instrument,
+        carrington_rotation=parts.rotation,
+        time=parts.time,
+        instrument=parts.instrument,
         grid=lat_axis.grid,
-        source=source,
+        source=parts.source,
         lat=lat_axis.centres,
         lon=lon_axis.centres,
-        header=dict(header),
+        header=parts.header,
         copy=False,
     )
-    m._row_stats = stats
-    m.los_b0, m.los_b0_how = los_b0, los_b0_how
+    m._row_stats = parts.stats
+    m.los_b0, m.los_b0_how, m.plane = parts.los_b0, parts.los_b0_how, parts.plane
     return m
-
-
-def _time_and_rotation(header: Mapping, lon_axis: _LonAxis, source: str):
-    with quiet_time_warnings():
-        time = _map_time(header, source)
-        rotation = _rotation_number(header, lon_axis.rotation, time, source)
-        if rotation is not None and not 0 < rotation < 100_000:
-            raise MapFormatError(f"{source}: Carrington rotation {rotation} is outside 1-99999")
-        if time is None and rotation is not None:
-            from sunpy.coordinates.sun import carrington_rotation_time
-
-            try:
-                time = carrington_rotation_time(rotation + 0.5).utc
-            except Exception as exc:  # ERFA refuses dates it cannot represent
-                raise MapFormatError(f"{source}: rotation {rotation} gives no usable date ({first_line(exc)})") from None
-    return time, rotation
 
 
 # --------------------------------------------------------------------------- writing
