@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -81,21 +82,37 @@ def _check_fill(fill: str) -> None:
 
 
 def _lon_widths(m: SynopticMap) -> np.ndarray:
-    return np.deg2rad(np.diff(m.lon_edges))
+    return _lon_grid(_key(m.lon_edges))[0]
 
 
-def _lon_integrals(m: SynopticMap, rows: slice = slice(None), absolute: bool = False):
+def _key(edges) -> bytes:
+    """A grid's edges as the key of its cached geometry."""
+    return np.ascontiguousarray(edges, dtype=np.float64).tobytes()
+
+
+@functools.lru_cache(maxsize=16)
+def _lon_grid(lon_edges: bytes) -> tuple[np.ndarray, float | None]:
+    """Column widths (radians) of a longitude grid, given as its edges' bytes, and their common
+    value on a regular grid (else None); kept per grid, as an archive's maps share a few."""
+    dlon = np.deg2rad(np.diff(np.frombuffer(lon_edges)))
+    dlon.flags.writeable = False
+    regular = float(np.ptp(dlon)) <= 1e-12 * float(dlon.max())
+    return dlon, float(dlon[0]) if regular else None
+
+
+def _lon_integrals(m: SynopticMap, rows: slice = slice(None), absolute: bool = False, lon_grid=None):
     """Per row: integral over longitude of B (or |B|) on observed pixels, and observed width.
 
     Both in radians of longitude (times G for the first); missing pixels add
     nothing. On a regular longitude grid the signed integrals come from the map's
     cached row sums, so that measuring reads an archive's pixels from memory once.
+    ``lon_grid``: ``m``'s :func:`_lon_grid`, when the caller has it.
     """
-    dlon = _lon_widths(m)
-    if float(np.ptp(dlon)) <= 1e-12 * float(dlon.max()):  # regular longitude grid
+    dlon, step = lon_grid or _lon_grid(_key(m.lon_edges))
+    if step is not None:
         stats = m.row_statistics()
         sums = stats.abs_sums(rows) if absolute else stats.sums[rows]
-        return sums * dlon[0], stats.counts[rows] * dlon[0]
+        return sums * step, stats.counts[rows] * step
     values = m.values[rows]
     finite = np.isfinite(values)
     clean = np.where(finite, values, 0.0).astype(np.float64)
@@ -139,26 +156,24 @@ def measure_caps(m: SynopticMap, cap_latitude=60, fill: str = "none") -> CapPair
     if not 0.0 < cap < 90.0:
         raise SettingsError(f"cap_latitude={cap} must lie strictly between 0 and 90 degrees")
     target = fill_polar_gaps(m, cap) if fill == "profile" else m
-    radius2 = SOLAR_RADIUS_CM**2
-    total_width = float(_lon_widths(m).sum())
+    grid = _lon_grid(_key(m.lon_edges))
+    total_width = float(grid[0].sum())
     results = {}
-    for hemisphere in HEMISPHERES:
-        weight = _cap_weights(m.lat_edges, cap, hemisphere) * radius2
-        rows = _contiguous(weight > 0)
-        w = weight[rows]
-        signed_rows, _ = _lon_integrals(target, rows)
-        unsigned_rows, _ = _lon_integrals(target, rows, absolute=True)
-        _, seen_rows = _lon_integrals(m, rows)
+    for hemisphere, (rows, w, w_sum) in zip(HEMISPHERES, _cap_rows(_key(m.lat_edges), cap), strict=True):
+        signed_rows, seen_rows = _lon_integrals(target, rows, lon_grid=grid)
+        unsigned_rows, _ = _lon_integrals(target, rows, absolute=True, lon_grid=grid)
+        if target is not m:  # coverage is of the observed pixels, before the fill
+            _, seen_rows = _lon_integrals(m, rows, lon_grid=grid)
         signed = float(w @ signed_rows)
         unsigned = float(w @ unsigned_rows)
-        area = float(w.sum() * total_width)
+        area = w_sum * total_width
         seen = float(w @ seen_rows)
         results[hemisphere] = CapMeasure(
             hemisphere=hemisphere,
-            signed_flux=signed * u.Mx,
-            unsigned_flux=unsigned * u.Mx,
-            mean_field=(signed / area) * u.G,
-            area=area * u.cm**2,
+            signed_flux=u.Quantity(signed, u.Mx),
+            unsigned_flux=u.Quantity(unsigned, u.Mx),
+            mean_field=u.Quantity(signed / area, u.G),
+            area=u.Quantity(area, u.cm**2),
             coverage=min(1.0, seen / area),
         )
     return CapPair(results["north"], results["south"], cap, fill)
@@ -190,8 +205,31 @@ def axial_dipole(m: SynopticMap, fill: str = "none", cap_latitude=60) -> u.Quant
     _check_fill(fill)
     target = fill_polar_gaps(m, as_degrees(cap_latitude, "cap_latitude")) if fill == "profile" else m
     integrals, _ = _lon_integrals(target)
-    moment = dipole_row_weights(m.lat_edges) @ integrals
-    return (3.0 / (4.0 * np.pi) * float(moment)) * u.G
+    moment = _dipole_weights(_key(m.lat_edges)) @ integrals
+    return u.Quantity(3.0 / (4.0 * np.pi) * float(moment), u.G)
+
+
+@functools.lru_cache(maxsize=16)
+def _dipole_weights(lat_edges: bytes) -> np.ndarray:
+    """:func:`~polarflux.geometry.dipole_row_weights` of a grid given as its edges' bytes, kept per grid."""
+    weights = dipole_row_weights(np.frombuffer(lat_edges))
+    weights.flags.writeable = False
+    return weights
+
+
+@functools.lru_cache(maxsize=32)
+def _cap_rows(lat_edges: bytes, cap: float) -> tuple:
+    """Per hemisphere: the cap's rows (a slice), their cap areas (cm2 per radian of longitude)
+    and the sum of those, for a grid given as its edges' bytes; kept per grid and cap."""
+    lat_edges_deg = np.frombuffer(lat_edges)
+    out = []
+    for hemisphere in HEMISPHERES:
+        weight = _cap_weights(lat_edges_deg, cap, hemisphere) * SOLAR_RADIUS_CM**2
+        rows = _contiguous(weight > 0)
+        w = weight[rows]
+        w.flags.writeable = False
+        out.append((rows, w, float(w.sum())))
+    return tuple(out)
 
 
 def _cap_weights(lat_edges, cap: float, hemisphere: str) -> np.ndarray:
