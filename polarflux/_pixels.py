@@ -30,7 +30,8 @@ from .errors import MapFormatError, SettingsError
 __all__ = ["RowStatistics"]
 
 _BLOCK_ROWS = 64  # rows of in-memory pixels copied and summed at once: small enough to stay in cache
-_BLOCK_BYTES = 1 << 20  # bytes of one block read from a file (about 1 MB: few system calls, blocks still in cache)
+_BLOCK_BYTES = 4 << 20  # bytes of one block read from a file: few system calls and Python steps, the block
+#                         still in the last-level cache for its byte swap and row sums (1 MB blocks measured slower)
 
 
 class RowStatistics:
@@ -81,7 +82,7 @@ def _missing_rows(values: np.ndarray, sums: np.ndarray, counts: np.ndarray, clea
     if not bad.size:
         return
     run = values[bad[0] : bad[-1] + 1] if bad[-1] - bad[0] + 1 == bad.size else values[bad]  # a view if contiguous
-    nan_rows = np.count_nonzero(np.isnan(run), axis=1) == values.shape[1]
+    nan_rows = np.isnan(run).all(axis=1)  # (a boolean ``all`` is several times faster than counting)
     counts[bad[nan_rows]], sums[bad[nan_rows]] = 0, 0.0  # rows of NaN only (polar strips): nothing to clean
     if not (bad := bad[~nan_rows]).size:
         return
