@@ -114,13 +114,7 @@ class ImageFile:
         self.header = inherit(header, primary)
         self.shape = tuple(int(n) for n in shape)
         self.nplanes = int(np.prod(self.shape[:-2]))
-        self.lat_axis = _latitude_axis(self.header, self.shape[-2], source)
-        self.lon_axis = _longitude_axis(self.header, self.shape[-1], source)
-        if self.lat_axis.projection != self.lon_axis.projection:
-            raise MapFormatError(
-                f"{source}: longitude and latitude axes disagree on the projection "
-                f"({self.header.get('CTYPE1')!r}, {self.header.get('CTYPE2')!r})"
-            )
+        self.lat_axis, self.lon_axis = axes(self.header, self.shape, source)
 
     def __enter__(self) -> ImageFile:
         return self
@@ -171,16 +165,48 @@ def parts_from_array(header: Mapping, data: np.ndarray, plane: int | None, sourc
     index = plane_index(data.shape, plane, source)
     if index is not None:
         data = data.reshape((-1,) + data.shape[-2:])[index]
-    nlat, nlon = data.shape
-    lat_axis = _latitude_axis(header, nlat, source)
-    lon_axis = _longitude_axis(header, nlon, source)
-    if lat_axis.projection != lon_axis.projection:
-        raise MapFormatError(
-            f"{source}: longitude and latitude axes disagree on the projection "
-            f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
-        )
+    lat_axis, lon_axis = axes(header, data.shape, source)
     values, stats = oriented_copy(data, header, lat_axis, lon_axis)
     return build_parts(values, stats, header, lat_axis, lon_axis, source, field, los_max_factor)
+
+
+#: The keywords :func:`~polarflux._header._latitude_axis` and ``_longitude_axis`` read.
+_AXIS_KEYS = ("CTYPE2", "CDELT2", "CD2_2", "PC2_1", "CD2_1", "PC2_2", "CRPIX2", "CRVAL2", "PV2_1",
+              "CTYPE1", "CDELT1", "CD1_1", "PC1_2", "CD1_2", "PC1_1", "CRPIX1", "CRVAL1")
+_ABSENT = object()
+_axes_cache: dict = {}
+_unit_factors: dict[str, float] = {}  # BUNIT -> Gauss per unit
+
+
+def axes(header: Mapping, shape: tuple[int, ...], source: str) -> tuple[_LatAxis, _LonAxis]:
+    """The latitude and longitude axes of an image of ``shape`` (``(..., NAXIS2, NAXIS1)``).
+
+    Kept per grid (the axis keywords and sizes): an archive's maps share a few
+    grids, and working them out costs more than reading the keywords. Refusals
+    are never kept, so each names its own file.
+    """
+    key = (shape[-2], shape[-1], *(header.get(k, _ABSENT) for k in _AXIS_KEYS))
+    try:
+        found = _axes_cache.get(key)
+    except TypeError:  # an unhashable keyword value: work the axes out
+        key, found = None, None
+    if found is None:
+        lat_axis = _latitude_axis(header, shape[-2], source)
+        lon_axis = _longitude_axis(header, shape[-1], source)
+        if lat_axis.projection != lon_axis.projection:
+            raise MapFormatError(
+                f"{source}: longitude and latitude axes disagree on the projection "
+                f"({header.get('CTYPE1')!r}, {header.get('CTYPE2')!r})"
+            )
+        found = lat_axis, lon_axis
+        if key is not None:
+            if len(_axes_cache) >= 64:
+                _axes_cache.clear()
+            for axis in found:
+                for array in (axis.edges, axis.centres):
+                    array.flags.writeable = False  # shared by every map of the grid
+            _axes_cache[key] = found
+    return found
 
 
 def build_parts(
@@ -200,7 +226,12 @@ def build_parts(
     ``cache`` keeps what depends on the header only (time, rotation, column B0)
     between the planes of one cube.
     """
-    factor = _gauss_per_unit(header, source)
+    bunit = header.get("BUNIT")
+    factor = _unit_factors.get(bunit) if isinstance(bunit, str) else None
+    if factor is None:  # parsing a unit costs more than reading the pixels' header
+        factor = _gauss_per_unit(header, source)
+        if isinstance(bunit, str) and bunit.strip() and len(_unit_factors) < 64:
+            _unit_factors[bunit] = factor
     if stats.counts.sum() == 0:
         raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
     # Plausibility: a row whose sum exceeds the limit times its length holds an absurd value.

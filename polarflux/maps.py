@@ -344,18 +344,18 @@ def _check_field(field: str, path: Any) -> None:
 
 def _assemble(parts: MapParts) -> SynopticMap:
     """The map of what the reader found (its pixels handed over, not copied)."""
-    lat_axis, lon_axis = parts.lat_axis, parts.lon_axis
+    lat_axis, lon_axis = parts.lat_axis, parts.lon_axis  # shared by the maps of a grid: each gets copies
     m = SynopticMap(
         br=parts.values,
-        lat_edges=lat_axis.edges,
-        lon_edges=lon_axis.edges,
+        lat_edges=lat_axis.edges.copy(),
+        lon_edges=lon_axis.edges.copy(),
         carrington_rotation=parts.rotation,
         time=parts.time,
         instrument=parts.instrument,
         grid=lat_axis.grid,
         source=parts.source,
-        lat=lat_axis.centres,
-        lon=lon_axis.centres,
+        lat=lat_axis.centres.copy(),
+        lon=lon_axis.centres.copy(),
         header=parts.header,
         copy=False,
     )
