@@ -32,6 +32,8 @@ __all__ = [
 
 FILL_METHODS = ("none", "profile")
 
+_CM2 = u.cm**2  # built once: composing a unit costs more than measuring a cap
+
 #: Exponent n of the polar-field profile B(latitude) = B_p sin^n(latitude) used to
 #: fill polar gaps. Svalgaard, Duvall & Scherrer (1978, Sol. Phys. 58, 225) found
 #: the polar field falling off as cos^8 of colatitude; n = 8 (recalled from memory,
@@ -173,7 +175,7 @@ def measure_caps(m: SynopticMap, cap_latitude=60, fill: str = "none") -> CapPair
             signed_flux=u.Quantity(signed, u.Mx),
             unsigned_flux=u.Quantity(unsigned, u.Mx),
             mean_field=u.Quantity(signed / area, u.G),
-            area=u.Quantity(area, u.cm**2),
+            area=u.Quantity(area, _CM2),
             coverage=min(1.0, seen / area),
         )
     return CapPair(results["north"], results["south"], cap, fill)
