@@ -7,6 +7,7 @@ module's notes for how the grid is decided from the axis span.
 from __future__ import annotations
 
 import contextlib
+import datetime
 import math
 import re
 import warnings
@@ -237,6 +238,37 @@ def _gauss_per_unit(header: Mapping, source: str) -> float:
         ) from None
 
 
+_MJD_ZERO = datetime.date(1858, 11, 17).toordinal()  # MJD 0 (MJD = JD - 2400000.5, IAU definition)
+_SECONDS = re.compile(r"\d{2}(?:\.\d{1,9})?\Z")
+
+
+def _utc_on_a_plain_day(year: str, month: str, day: str, hour: str, minute: str, second: str) -> Time | None:
+    """``Time(f"{year}-{month}-{day}T{hour}:{minute}:{second}", format="isot", scale="utc")``: the
+    same jd1, jd2 and format, built from the day's number and fraction without parsing the text
+    again or calling ERFA (whose warnings on years past its leap-second table cost more than the
+    time itself, on every map of a future epoch).
+
+    Only for days of exactly 86400 s: before the 28th (TAI - UTC changes only at the start of a
+    month: no leap second), and from 1972 (whole leap seconds only; older UTC, which also drifted
+    against TAI, is left to astropy). There the two parts are
+    ERFA ``dtf2d``'s, 2400000.5 + MJD and (60 (60 h + m) + s) / 86400. None elsewhere and for any
+    value out of range: the caller then asks astropy, which decides as before.
+    """
+    y, mo, d, h, mi = int(year), int(month), int(day), int(hour), int(minute)
+    if y < 1972 or d >= 28 or h > 23 or mi > 59 or not _SECONDS.match(second):
+        return None
+    seconds = float(second)
+    if seconds >= 60.0:
+        return None
+    try:
+        mjd = datetime.date(y, mo, d).toordinal() - _MJD_ZERO
+    except ValueError:
+        return None
+    time = Time(2400000.5 + mjd, (60.0 * (60 * h + mi) + seconds) / 86400.0, format="jd", scale="utc")
+    time.format = "isot"
+    return time
+
+
 def parse_header_time(value: Any) -> Time | None:
     """Parse a header time: ISO 8601, or the ``YYYY.MM.DD_hh:mm:ss_TAI`` form."""
     if value is None:
@@ -248,6 +280,8 @@ def parse_header_time(value: Any) -> Time | None:
     if match:
         year, month, day, hour, minute, second, scale = match.groups()
         second = second or "00"
+        if (scale or "").upper() != "TAI" and (quick := _utc_on_a_plain_day(year, month, day, hour, minute, second)):
+            return quick
         iso = f"{year}-{month}-{day}T{hour}:{minute}:{second}"
         scale = "tai" if (scale or "").upper() == "TAI" else "utc"
         return Time(iso, format="isot", scale=scale).utc

@@ -440,6 +440,31 @@ def test_map_time_from_the_standard_time_keywords(tmp_path, keys, expected):
     assert m.time.utc.isot.startswith(expected)
 
 
+def test_header_times_are_the_times_astropy_parses():
+    """Reference: astropy's ISO 8601 parser (``Time(text, format="isot", scale="utc")``), to the bit:
+    days of a quick path and days it must leave to astropy (month ends, a leap second, before 1972)."""
+    from astropy.time import Time
+
+    from polarflux.maps import parse_header_time, quiet_time_warnings
+
+    rng = np.random.default_rng(14)
+    texts = ["2016-12-31T23:59:60", "2016-12-31T23:59:60.5", "2016-12-31T12:00:00", "2015-06-30T18:00:00",
+             "1971-06-15T12:00:00", "1960-03-03T03:03:03",
+             "2040-01-01T00:00:00.000", "2040-02-27T23:59:59.999999999", "2040-02-28T00:00:00", "2024-02-29T06:00",
+             "2041-05-14_12:00:00Z", "2041.05.14_12:00:00_UTC", "1972-01-01T00:00:00"]
+    for _ in range(300):
+        year, month, day = rng.integers(1950, 2300), rng.integers(1, 13), rng.integers(1, 29)
+        hour, minute, second = rng.integers(0, 24), rng.integers(0, 60), rng.integers(0, 60)
+        digits = "".join(str(k) for k in rng.integers(0, 10, rng.integers(0, 10)))
+        texts.append(f"{year:04d}-{month:02d}-{day:02d}T{hour:02d}:{minute:02d}:{second:02d}" + (f".{digits}" if digits else ""))
+    with quiet_time_warnings():
+        for text in texts:
+            iso = text.replace("_", "T").replace(".", "-", 2).rstrip("Z").removesuffix("TUTC") if "_" in text else text
+            expected, got = Time(iso, format="isot", scale="utc"), parse_header_time(text)
+            assert (got.jd1, got.jd2, got.format, got.scale) == (expected.jd1, expected.jd2, "isot", "utc"), text
+            assert got.isot == expected.isot, text
+
+
 def test_a_map_without_time_is_refused_by_the_archive_with_the_keywords_it_lacked(tmp_path):
     """DATE is the file's creation date (FITS standard 4.0, sec. 4.4.2.1), never the map's time."""
     from conftest import cea_header, write_fits
