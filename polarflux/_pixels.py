@@ -50,19 +50,18 @@ class RowStatistics:
         Complete rows are summed by BLAS ``sasum``/``dasum`` (one read of the row,
         no temporary); rows with missing pixels without them.
         """
-        cached = self._abs_sums[rows]
+        cached = self._abs_sums[rows]  # a view: what is filled in here is kept
         todo = np.flatnonzero(np.isnan(cached))
         if todo.size:
             from scipy.linalg.blas import dasum, sasum
 
-            asum = sasum if self._values.dtype == np.float32 else dasum
-            start, nlon = rows.start or 0, self._values.shape[1]
-            for k in todo:
-                row, found = self._values[start + k], self.counts[start + k]
-                if found == nlon:
-                    cached[k] = asum(row)
-                else:
-                    cached[k] = np.einsum("i->", np.abs(np.where(np.isfinite(row), row, 0.0))) if found else 0.0
+            values, nlon = self._values, self._values.shape[1]
+            asum = sasum if values.dtype == np.float32 else dasum
+            index = (rows.start or 0) + todo
+            cached[todo] = [  # plain Python numbers in the loop: numpy scalars cost more than the sums
+                asum(values[i]) if found == nlon else _abs_sum_of_finite(values[i]) if found else 0.0
+                for i, found in zip(index.tolist(), self.counts[index].tolist(), strict=True)
+            ]
         return cached
 
     def scale(self, values: np.ndarray, factor) -> None:
@@ -70,6 +69,10 @@ class RowStatistics:
         self._values = values
         self.sums *= factor
         self._abs_sums *= factor
+
+
+def _abs_sum_of_finite(row: np.ndarray) -> float:
+    return float(np.einsum("i->", np.abs(np.where(np.isfinite(row), row, 0.0))))
 
 
 def _missing_rows(values: np.ndarray, sums: np.ndarray, counts: np.ndarray, clean: bool) -> None:
