@@ -183,8 +183,9 @@ def _place(block: np.ndarray, src: np.ndarray, roll: int) -> None:
 
 
 def _convert(block: np.ndarray, src: np.ndarray | None, roll: int, scaling: Scaling, mask: np.ndarray | None,
-             sums: np.ndarray) -> None:
-    """Fill ``block`` from the raw rows ``src`` (oriented but for the roll): scaled, cleaned and summed.
+             sums: np.ndarray, counts: np.ndarray) -> None:
+    """Fill ``block`` from the raw rows ``src`` (oriented but for the roll): scaled, cleaned and summed
+    (``sums``, ``counts``: the block's rows'), rows with missing pixels too, while the block is in cache.
 
     ``src`` None: ``block`` already holds the raw values (floating point, in map order).
 
@@ -204,6 +205,7 @@ def _convert(block: np.ndarray, src: np.ndarray | None, roll: int, scaling: Scal
     if scaling.missing is not None:
         block[block == scaling.missing] = np.nan
     sums[:] = np.einsum("ij->i", block)
+    _missing_rows(block, sums, counts, clean=True)
 
 
 def oriented_copy(data: np.ndarray, header: Mapping, lat_axis, lon_axis) -> tuple[np.ndarray, RowStatistics]:
@@ -225,8 +227,7 @@ def oriented_copy(data: np.ndarray, header: Mapping, lat_axis, lon_axis) -> tupl
     mask = np.empty((_BLOCK_ROWS, nlon), dtype=bool) if blank is not None else None
     for a in range(0, nlat, _BLOCK_ROWS):
         rows = slice(a, min(a + _BLOCK_ROWS, nlat))
-        _convert(out[rows], view[rows], layout.roll, scaling, mask, sums[rows])
-    _missing_rows(out, sums, counts, clean=True)
+        _convert(out[rows], view[rows], layout.roll, scaling, mask, sums[rows], counts[rows])
     return out, RowStatistics(out, sums, counts)
 
 
@@ -270,19 +271,18 @@ def read_plane(f, image: FitsImage, plane: int, layout: Layout, scaling: Scaling
             np.copyto(dest, dest.view(raw_dtype))  # in place: a 1-D forward cast needs no temporary
             if verify:
                 total += _swapped_word_sum(dest)
-            _convert(out[a:b], None, 0, scaling, mask, sums[a:b])
+            _convert(out[a:b], None, 0, scaling, mask, sums[a:b], counts[a:b])
             continue
         if verify:
             total += _word_sum(dest.view(np.uint8))
         src = layout.columns(buf[b - a - 1 :: -1] if layout.flip_rows else buf[: b - a])
         rows = slice(nrows - b, nrows - a) if layout.flip_rows else slice(a, b)
-        _convert(out[rows], src, layout.roll, scaling, mask, sums[rows])
+        _convert(out[rows], src, layout.roll, scaling, mask, sums[rows], counts[rows])
     if verify:
         end = start + plane_bytes
         total += _sum_range(f, end, image.offset + image.nbytes - end, source, image)
     if verify or whole:
         check_sums(image, total, source)
-    _missing_rows(out, sums, counts, clean=True)
     return out, RowStatistics(out, sums, counts)
 
 
