@@ -24,10 +24,9 @@ that cycle is forecast from the proxy measured at its minimum instead. Members d
 the peak flow speed (8-15 m/s), the decay time (5-10 years, or none) and the date
 of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years,
 truncated at the earliest date the minimum can have without being confirmed yet).
-The flux the declining cycle will still emerge is not modelled yet: the projection
-is low by what it would add (late low-latitude regions build the dipole because part
-of their leading flux cancels across the equator), most for forecasts made 3-4 years
-before the minimum.
+The declining cycle's remaining regions emerge in every member
+(:mod:`polarflux.emergence`), their flux per region fitted on the record's own
+earlier minima; the misfit there beyond the ensemble's spread widens the members.
 
 Forecast
 --------
@@ -142,7 +141,7 @@ def read_calibration(path: str | os.PathLike) -> list[dict]:
 
 def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, members: int = 300,
                        seed: int = 0, nlat: int = 180, cap_latitude: float = 60.0,
-                       cycle_length=(11.0, 0.8), earliest: float | None = None) -> dict:
+                       cycle_length=(11.0, 0.8), earliest: float | None = None, late=None) -> dict:
     """Evolve a latitude profile to each member's date of minimum with an axisymmetric ensemble.
 
     Parameters
@@ -166,15 +165,9 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
         ``minimum`` (decimal year), ``axial_dipole``, ``north``, ``south``, ``mean_field``
         at each member's minimum, and the drawn ``diffusivity``, ``flow_speed``, ``decay_time``.
     """
-    from .geometry import regrid_conservative
     from .measure import profile_measures
-    from .transport import TransportEnsemble
-    from .transport.model import model_grid
 
-    rng = np.random.default_rng(seed)
-    eta = rng.uniform(250.0, 600.0, members)
-    speed = rng.uniform(8.0, 15.0, members)
-    tau = np.where(rng.random(members) < 0.25, np.inf, rng.uniform(5.0, 10.0, members))
+    rng, eta, speed, tau = _ensemble_draws(members, seed)
     from scipy.stats import truncnorm
 
     low = now + 27.2753 / 365.25 if earliest is None else float(earliest)
@@ -185,11 +178,8 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
     else:
         minimum = last_minimum + mean + sd * truncnorm.ppf(rng.uniform(0.0, 1.0, members), a, np.inf)
     horizon = max(float(minimum.max() - now), 27.2753 / 365.25)
-    edges, _ = model_grid(nlat, 1)
-    start = regrid_conservative(np.asarray(profile, dtype=np.float64)[:, None], lat_edges, [0.0, 360.0],
-                                edges, [0.0, 360.0])[:, 0]
-    ensemble = TransportEnsemble(nlat=nlat, diffusivity=eta, flow_speed=speed, decay_time=tau)
-    run = ensemble.run(start, years=horizon, step_days=5.0, save_every_days=27.2753, cap_latitude=cap_latitude)
+    run, start, edges = _evolve(profile, lat_edges, eta, speed, tau, horizon, nlat, cap_latitude,
+                                None if late is None else late.deposit)
     when = now + run["time"].values
     out = {"minimum": minimum, "diffusivity": eta, "flow_speed": speed, "decay_time": tau}
     for name, var in (("axial_dipole", "axial_dipole"), ("north", "north_mean_field"), ("south", "south_mean_field")):
@@ -199,6 +189,42 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
     measures = profile_measures(start, edges, cap_latitude)
     out["now"] = {k: float(v) for k, v in measures.items()}
     return out
+
+
+def _ensemble_draws(members: int, seed: int):
+    """The ensemble's transport parameters: diffusivity (km^2/s), peak flow (m/s), decay time (yr)."""
+    rng = np.random.default_rng(seed)
+    eta = rng.uniform(250.0, 600.0, members)
+    speed = rng.uniform(8.0, 15.0, members)
+    tau = np.where(rng.random(members) < 0.25, np.inf, rng.uniform(5.0, 10.0, members))
+    return rng, eta, speed, tau
+
+
+def _evolve(profile, lat_edges, eta, speed, tau, years: float, nlat: int, cap_latitude: float, deposit=None):
+    """Run the axisymmetric ensemble from a profile; the run, the start on the model rows, the model edges."""
+    from .geometry import regrid_conservative
+    from .transport import TransportEnsemble
+    from .transport.model import model_grid
+
+    edges, _ = model_grid(nlat, 1)
+    start = regrid_conservative(np.asarray(profile, dtype=np.float64)[:, None], lat_edges, [0.0, 360.0],
+                                edges, [0.0, 360.0])[:, 0]
+    ensemble = TransportEnsemble(nlat=nlat, diffusivity=eta, flow_speed=speed, decay_time=tau)
+    run = ensemble.run(start, years=years, step_days=5.0, save_every_days=27.2753, cap_latitude=cap_latitude,
+                       deposit=deposit)
+    return run, start, edges
+
+
+def _run_ensemble(profile, lat_edges, now: float, years: float, members: int, seed: int, cap_latitude: float,
+                  deposit=None, nlat: int = 180):
+    """Each member's axial dipole ``years`` after the start, and the model's dipole at the start."""
+    from .measure import profile_measures
+
+    _, eta, speed, tau = _ensemble_draws(members, seed)
+    run, start, edges = _evolve(profile, lat_edges, eta, speed, tau, years, nlat, cap_latitude, deposit)
+    times, dipole = run["time"].values, run["axial_dipole"].values
+    at = np.array([np.interp(years, times, dipole[k]) for k in range(members)])
+    return at, float(profile_measures(start, edges, cap_latitude)["axial_dipole"])
 
 
 # --------------------------------------------------------------------------- forecast
@@ -369,6 +395,23 @@ def _anchor(merged, when) -> dict:
     return out
 
 
+def _late_emergence(past, merged, events, t_ssn, v_ssn, bases, last_minimum, as_of_year, now, members, seed, cap):
+    """The late-emergence fit on the record's earlier minima and the source for this projection (or Nones)."""
+    from .emergence import DecliningCycle, LateEmergence, fit_flux_scale
+
+    fit = fit_flux_scale(past, merged, events, t_ssn, v_ssn, bases, seed=seed, cap_latitude=cap)
+    if fit is None or not fit.flux_scale > 0:
+        return fit, None
+    at = [a for a in events.get("at_minima", []) if abs(a["time"] - last_minimum) < 1e-6]
+    if at and np.isfinite(at[0]["north"]) and at[0]["north"] != 0:
+        north_sign = -np.sign(at[0]["north"])  # the declining cycle reverses the field it started with
+    else:
+        recent = merged["mean_field_corrected"].sel(hemisphere="north").values[-13:]
+        north_sign = np.sign(np.nanmean(recent)) or 1.0
+    cycle = DecliningCycle.fit(t_ssn, v_ssn, last_minimum, as_of_year)
+    return fit, LateEmergence(cycle, last_minimum, north_sign, fit.flux_scale, now, members, seed=seed + 3)
+
+
 def public_result(result: dict) -> dict:
     """A forecast result without its Monte Carlo samples and fit object: what the JSON output holds."""
     return {k: v for k, v in result.items() if k not in ("samples", "fit")}
@@ -435,6 +478,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     if not minima:
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     fill_relative = 0.0
+    late_fit = None
     peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
     rising = _rising_cycle(events, minima[-1], as_of_year, proxy, peak)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
@@ -455,8 +499,11 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # the coming minimum is not confirmed yet: it is after the forecast date less the time the
         # series needs to confirm one (half the 13-month smoothing window, then CONFIRM_YEARS of rise)
         earliest = max(minima[-1] + 1.0, as_of_year - (0.5 + CONFIRM_YEARS))
+        cap = float(record.attrs.get("cap_deg", 60.0))
+        late_fit, late = _late_emergence(past, merged, events, t_ssn, v_ssn, bases, minima[-1], as_of_year, now,
+                                         members, seed, cap)
         projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
-                                        cap_latitude=float(record.attrs.get("cap_deg", 60.0)), earliest=earliest)
+                                        cap_latitude=cap, earliest=earliest, late=late)
         start = projection["now"]
         model_now = {"axial_dipole": abs(start["axial_dipole"]),
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
@@ -466,12 +513,17 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # year's values: each member's scale is drawn from both
         fill_relative = _fill_relative_error(merged)
         anchor_relative = measured["errors"][proxy] / measured[proxy] if measured[proxy] > 0 else 0.0
-        relative = float(np.hypot(fill_relative, anchor_relative))
+        # the projection's misfit on the record's earlier minima beyond the ensemble's own spread
+        extra = late_fit.extra_relative_error if late_fit is not None else 0.0
+        relative = float(np.sqrt(fill_relative**2 + anchor_relative**2 + extra**2))
         if relative > 0:
             spread = np.random.default_rng(seed + 2).normal(0.0, relative, np.size(projection[proxy]))
             projection[proxy] = projection[proxy] * np.maximum(1.0 + spread, 0.1)
         projection_kind = (f"transport ensemble from {path}, anchored to the record's smoothed, viewing-corrected "
-                           f"{proxy} there ({100 * anchor_relative:.0f} % error)")
+                           f"{proxy} there ({100 * anchor_relative:.0f} % error); " + (
+                               late_fit.describe() if late_fit is not None else
+                               "late emergence left out (fewer than two earlier minima to fit its flux on): "
+                               "the projection is low by what the declining cycle still emerges"))
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
         values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
                         else np.nanmean(np.abs(merged["mean_field_corrected"].values), axis=1))
@@ -511,6 +563,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         },
         "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
                        "fill_relative_error": fill_relative,
+                       "late_emergence": None if late_fit is None else late_fit.as_dict(),
                        "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"],
                        **{f"{name}_at_minimum": _summary(projection[name])
                           for name in ("north", "south", "axial_dipole") if name in projection}},

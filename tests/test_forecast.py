@@ -127,12 +127,11 @@ def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
     assert len(targets) - inside <= 1, errors
 
 
-@pytest.mark.xfail(strict=True, reason="the projection leaves out the declining cycle's late emergence "
-                   "(issue 15): two years ahead the projected dipole at minimum falls short (2.8 G against "
-                   "about 3.3 G for cycle 5 of this world)")
 def test_hindcast_medians_two_years_ahead_within_their_stated_error(hindcast_scenario):
     # each median within 2.5 times the error the forecast states for itself: the calibration's
-    # leave-one-out rms combined with the world's own precursor scatter (truth.json, log_scatter)
+    # leave-one-out rms combined with the world's own precursor scatter (truth.json, log_scatter).
+    # Failed (2.8 G projected against about 3.3 G for cycle 5) until the declining cycle's late
+    # emergence entered the projection.
     folder, truth, record, t, v = hindcast_scenario
     scatter = truth["precursor_relation"]["log_scatter"]
     for target in [c for c in truth["cycles"][3:]] + [truth["next_cycle"]]:
@@ -264,3 +263,16 @@ def test_an_unconfirmed_minimum_may_lie_behind_the_date_but_not_before_it_could_
     assert np.median(out["minimum"]) == pytest.approx(expected, abs=0.08)
     past = out["minimum"] <= now
     assert past.any() and np.allclose(out["axial_dipole"][past], out["now"]["axial_dipole"], rtol=1e-9)
+
+
+def test_late_emergence_fitted_on_earlier_minima_improves_their_hindcasts(hindcast_scenario):
+    # the flux scale comes from the record's own earlier minima; with it the projected dipoles there
+    # must come closer to the measured ones than without (the measured ones are the record's data)
+    folder, truth, record, t, v = hindcast_scenario
+    result = forecast_from_record(record, t, v, as_of=2051.0 + truth["next_cycle"]["start_years"] - 3.0,
+                                  members=60, seed=4)
+    late = result["projection"]["late_emergence"]
+    assert late is not None and late["flux_scale_mx"] > 0
+    assert late["relative_rms"] < late["relative_rms_without"]
+    assert len({round(h["minimum"], 2) for h in late["hindcasts"]}) >= 2
+    assert "late emergence" in result["projection"]["method"]

@@ -84,7 +84,7 @@ class TransportEnsemble:
     def run(self, initial, years: float = 11.0, step_days: float = 1.0,
             save_every_days: float = CARRINGTON_PERIOD_DAYS, cap_latitude: float = 60.0,
             sources: Sequence[BipolarRegion] | None = None, nlon_sources: int = 360,
-            lat_edges=None, grid: str | None = None):
+            lat_edges=None, grid: str | None = None, deposit: Callable | None = None):
         """Evolve every member from ``initial``.
 
         Parameters
@@ -109,6 +109,10 @@ class TransportEnsemble:
             equal-angle rows and must have exactly ``nlat`` of them (a
             sine-latitude profile of that length cannot be told apart from its
             values, so it must be named).
+        deposit : callable, optional
+            f(lat_edges, t0, t1) -> field (G) of shape (nlat, members) or None: flux
+            added per member for what emerges from ``t0`` to ``t1`` years after the start
+            (for example :class:`polarflux.emergence.LateEmergence`'s ``deposit``).
 
         Returns
         -------
@@ -144,6 +148,10 @@ class TransportEnsemble:
             while next_region < len(regions) and regions[next_region].time < t_end:
                 b += region_field(regions[next_region], fine.lat, fine.lon, fine.solid_angle()).mean(axis=1)[:, None]
                 next_region += 1
+            if deposit is not None:
+                added = deposit(g.lat_edges, step * step_days / 365.25, t_end)
+                if added is not None:
+                    b += added
             b *= decay
             rhs = (1.0 + half * diag) * b
             rhs[1:] += half * lower[1:] * b[:-1]
