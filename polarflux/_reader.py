@@ -15,7 +15,8 @@ from dataclasses import dataclass
 import numpy as np
 from astropy.time import Time
 
-from . import _pixels
+from . import _fits, _pixels
+from ._fits import astropy_image, first_line, inherit, refusals
 from ._header import (
     _gauss_per_unit,
     _LatAxis,
@@ -26,16 +27,7 @@ from ._header import (
     _rotation_number,
     quiet_time_warnings,
 )
-from ._pixels import (
-    RowStatistics,
-    _row_statistics,
-    astropy_image,
-    first_line,
-    inherit,
-    oriented_copy,
-    plane_index,
-    refusals,
-)
+from ._pixels import RowStatistics, _row_statistics, oriented_copy, plane_index
 from .errors import MapFormatError
 from .los import field_in_header
 
@@ -98,8 +90,8 @@ class ImageFile:
     def _open(self, pixels: bool) -> None:
         source = self.source
         with refusals(source):
-            self._file = _pixels.open_fits(source)
-            found = _pixels.find_image(self._file) if self._file is not None else "astropy"
+            self._file = _fits.open_fits(source)
+            found = _fits.find_image(self._file) if self._file is not None else "astropy"
             if found is None:
                 raise MapFormatError(f"{source}: no 2-D image in any HDU")
             if isinstance(found, str):  # tile-compressed, bzip2 or zip: astropy decodes
@@ -109,7 +101,7 @@ class ImageFile:
             else:
                 self.image = found
                 header, primary, shape = found.header, found.primary, found.shape
-                if not _pixels.is_gzip(self._file) and os.path.getsize(source) < found.offset + found.nbytes:
+                if not _fits.is_gzip(self._file) and os.path.getsize(source) < found.offset + found.nbytes:
                     raise _pixels.truncated(source, found, os.path.getsize(source))
         self.header = inherit(header, primary)
         self.shape = tuple(int(n) for n in shape)
