@@ -167,7 +167,7 @@ _AXIS_KEYS = ("CTYPE2", "CDELT2", "CD2_2", "PC2_1", "CD2_1", "PC2_2", "CRPIX2", 
               "CTYPE1", "CDELT1", "CD1_1", "PC1_2", "CD1_2", "PC1_1", "CRPIX1", "CRVAL1")
 _ABSENT = object()
 _axes_cache: dict = {}
-_unit_factors: dict[str, float] = {}  # BUNIT -> Gauss per unit
+_unit_cache: dict[str, float] = {}  # BUNIT -> Gauss per unit
 
 
 def axes(header: Mapping, shape: tuple[int, ...], source: str) -> tuple[_LatAxis, _LonAxis]:
@@ -219,11 +219,11 @@ def build_parts(
     between the planes of one cube.
     """
     bunit = header.get("BUNIT")
-    factor = _unit_factors.get(bunit) if isinstance(bunit, str) else None
+    factor = _unit_cache.get(bunit) if isinstance(bunit, str) else None
     if factor is None:  # parsing a unit costs more than reading the pixels' header
         factor = _gauss_per_unit(header, source)
-        if isinstance(bunit, str) and bunit.strip() and len(_unit_factors) < 64:
-            _unit_factors[bunit] = factor
+        if isinstance(bunit, str) and bunit.strip() and len(_unit_cache) < 64:
+            _unit_cache[bunit] = factor
     if stats.counts.sum() == 0:
         raise MapFormatError(f"{source}: all values are missing (NaN, BLANK or inf)")
     # Plausibility: a row whose sum exceeds the limit times its length holds an absurd value.
