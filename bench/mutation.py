@@ -13,7 +13,8 @@ Not part of CI and not run by pytest. From the repository root, with the dev ext
     python bench/mutation.py [--jobs 2] [--groups geometry measure ...] [--out bench/mutation_survivors.md]
 
 Every group runs in its own copy of the working tree (polarflux/, tests/, ...) under a
-temporary folder, so the files being edited here are never touched. The summary
+temporary folder, so the files being edited here are never touched; ``--rev HEAD``
+copies a commit instead (others' edits in progress stay out). The summary
 table, the run time, the load average seen during the run and every survivor are
 written to ``--out``; the exit status is 1 if a survivor is neither killed nor
 explained. mutmut mutates code inside undecorated functions only: module-level
@@ -27,10 +28,12 @@ the mutant.
 from __future__ import annotations
 
 import argparse
+import io
 import os
 import shutil
 import subprocess
 import sys
+import tarfile
 import tempfile
 import threading
 import time
@@ -128,8 +131,13 @@ def _toml_list(values) -> str:
     return "[" + ", ".join('"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"' for v in values) + "]"
 
 
-def _prepare(group: Group, folder: Path) -> None:
-    for name in COPIED:
+def _prepare(group: Group, folder: Path, rev: str | None) -> None:
+    if rev:  # a committed state: others' edits in progress in the working tree stay out
+        archive = subprocess.run(["git", "archive", "--format=tar", rev, "--", *COPIED], cwd=ROOT, check=True,
+                                 capture_output=True).stdout
+        with tarfile.open(fileobj=io.BytesIO(archive)) as tar:
+            tar.extractall(folder, filter="data")
+    for name in [] if rev else COPIED:
         source = ROOT / name
         if source.is_dir():
             shutil.copytree(source, folder / name, ignore=shutil.ignore_patterns("__pycache__", "*.pyc"))
@@ -185,10 +193,10 @@ class LoadSampler(threading.Thread):
         self._halt.set()
 
 
-def run_group(group: Group, base: Path, jobs: int) -> dict:
+def run_group(group: Group, base: Path, jobs: int, rev: str | None = None) -> dict:
     folder = base / group.name
     folder.mkdir(parents=True)
-    _prepare(group, folder)
+    _prepare(group, folder, rev)
     patterns = [_pattern(group, f) for f in group.functions]
     start = time.monotonic()
     _mutmut(folder, "run", "--max-children", str(jobs), *patterns, log=base / f"{group.name}.log")
@@ -262,6 +270,7 @@ def main(argv=None) -> int:
     parser.add_argument("--groups", nargs="+", choices=[g.name for g in GROUPS], help="only these groups")
     parser.add_argument("--out", type=Path, default=ROOT / "bench" / "mutation_survivors.md")
     parser.add_argument("--keep", action="store_true", help="keep the working copies (to inspect mutants)")
+    parser.add_argument("--rev", help="mutate and test this git revision (e.g. HEAD) instead of the working tree")
     parser.add_argument("--existing-only", action="store_true",
                         help="leave out the tests/test_mutants_*.py files (the score before them)")
     args = parser.parse_args(argv)
@@ -279,7 +288,7 @@ def main(argv=None) -> int:
     try:
         for group in groups:
             print(f"{group.name}: mutating {group.path} ...", flush=True)
-            r = run_group(group, base, args.jobs)
+            r = run_group(group, base, args.jobs, args.rev)
             st = r["statuses"]
             killed = sum(1 for v in st.values() if v == "killed")
             print(f"    {killed}/{len(st)} killed, {len(r['survivors'])} not, {r['seconds']:.0f} s", flush=True)
