@@ -100,9 +100,191 @@ GROUPS = (
 #: Lines never mutated: raising an error (the message text is not numerics).
 DO_NOT_MUTATE = (r"^\s*raise ",)
 
+_SIN90 = "np.sin(np.deg2rad(+-90.0)) is exactly +-1.0 in float64: the line only states it"
+_TWO_D = "the only caller passes 2-D arrays, where axis +1 is axis -1 and shape[:+1] is shape[:-1]"
+_AS_FLOAT64 = "np.dtype(None) is float64: the same conversion"
+_PROMOTED = ("the values only meet float64 arrays, which promote them exactly (float32 and integers are exact "
+             "in float64), before any arithmetic")
+_NEGLIGIBLE_CUT = ("moves the cut for negligible numbers (1e-30 of the largest) by a factor near one or onto its "
+               "boundary: what changes lies 14 orders below round-off")
+_SAME_CACHE = "lon_grid is the map's own _lon_grid, which the callee looks up itself when not given"
+_STRICT = "both sequences have the same length by construction, so strict only checks what always holds"
+_COPY = "the filled pixels are a new array already: copying it again or not changes nothing"
+_ZERO_ROWS = "the rows this adds or keeps have cap weight exactly 0 (clip(c) - clip(c)), so the sums are the same"
+_NEVER_EMPTY = "unreachable: 0 < cap < 90, so the polar row always has a positive cap weight"
+_UNREAD = "overwritten before use: rows without data get the profile value whenever the cap holds any data"
+_SYMMETRIC = "Student t is symmetric: the draw has the same distribution (the contract) either way"
+_STATISTICAL = ("another seed or one resample more is an equally valid bootstrap: no reference can prefer one "
+                "(the seed stays fixed; test_bootstrap_is_reproducible)")
+
 #: Survivors that no test can kill: (module file, function, the changed line as mutmut writes it,
 #: stripped) -> why the mutant computes the same thing as the original.
-EQUIVALENT: dict[tuple[str, str, str], str] = {}
+EQUIVALENT: dict[tuple[str, str, str], str] = {
+    ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == +90.0] = -1.0"): _SIN90,
+    ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == -91.0] = -1.0"): _SIN90,
+    ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == 91.0] = 1.0"): _SIN90,
+    ("polarflux/geometry.py", "_cumulative", "moved = np.moveaxis(values * widths, axis, +1)"): _TWO_D,
+    ("polarflux/geometry.py", "_cumulative", "out = np.zeros(moved.shape[:+1] + (moved.shape[-1] + 1,))"): _TWO_D,
+    ("polarflux/geometry.py", "_cumulative", "out = np.zeros(moved.shape[:-1] + (moved.shape[+1] + 1,))"): _TWO_D,
+    ("polarflux/geometry.py", "_cumulative", "np.cumsum(moved, axis=+1, out=out[..., 1:])"): _TWO_D,
+    ("polarflux/geometry.py", "_cumulative", "return np.moveaxis(out, +1, axis)"): _TWO_D,
+    ("polarflux/geometry.py", "regrid_conservative", "values = np.asarray(values, dtype=None)"): _PROMOTED,
+    ("polarflux/geometry.py", "regrid_conservative", "values = np.asarray(values, )"): _PROMOTED,
+    ("polarflux/geometry.py", "regrid_conservative", "return np.diff(at_edges, ) / np.diff(dst_lon)[None, :]"):
+        "np.diff's default axis is the last: axis 1 of the 2-D array",
+    ("polarflux/geometry.py", "_interp_rows",
+     'index = np.clip(np.searchsorted(x, x_new, side="right") - 1, None, len(x) - 2)'):
+        "x_new never lies below x[0]: latitude sines both start at exactly -1, longitudes are first reduced into "
+        "the source's period (no grid offset on a 0.1-degree lattice gives one below)",
+    ("polarflux/geometry.py", "_interp_rows", "index = np.clip(np.searchsorted(x, x_new, ) - 1, 0, len(x) - 2)"):
+        "at an x_new equal to a source edge the other interval gives frac exactly 1 and the same table value",
+    ("polarflux/measure.py", "_key", "return np.ascontiguousarray(edges, dtype=None).tobytes()"):
+        "a map's edges are float64 already (SynopticMap converts them)",
+    ("polarflux/measure.py", "_key", "return np.ascontiguousarray(edges, ).tobytes()"):
+        "a map's edges are float64 already (SynopticMap converts them)",
+    ("polarflux/measure.py", "_lon_integrals", "clean = np.where(finite, values, 0.0).astype(None)"): _AS_FLOAT64,
+    ("polarflux/measure.py", "_contiguous", "return slice(None, 0)"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(0, None)"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(0)"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(0, )"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(1, 0)"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(0, 1)"): _NEVER_EMPTY,
+    ("polarflux/measure.py", "_contiguous", "return slice(None, int(rows[-1]) + 1)"): _ZERO_ROWS,
+    ("polarflux/measure.py", "_contiguous", "return slice(int(rows[0]), None)"): _ZERO_ROWS,
+    ("polarflux/measure.py", "_contiguous", "return slice(int(rows[-1]) + 1)"): _ZERO_ROWS,
+    ("polarflux/measure.py", "_contiguous", "return slice(int(rows[0]), int(rows[-1]) + 2)"): _ZERO_ROWS,
+    ("polarflux/measure.py", "measure_caps",
+     "for hemisphere, (rows, w, w_sum) in zip(HEMISPHERES, _cap_rows(_key(m.lat_edges), cap), strict=None):"): _STRICT,
+    ("polarflux/measure.py", "measure_caps",
+     "for hemisphere, (rows, w, w_sum) in zip(HEMISPHERES, _cap_rows(_key(m.lat_edges), cap), ):"): _STRICT,
+    ("polarflux/measure.py", "measure_caps",
+     "for hemisphere, (rows, w, w_sum) in zip(HEMISPHERES, _cap_rows(_key(m.lat_edges), cap), strict=False):"):
+        _STRICT,
+    ("polarflux/measure.py", "measure_caps", "signed_rows, seen_rows = _lon_integrals(target, rows, lon_grid=None)"):
+        _SAME_CACHE,
+    ("polarflux/measure.py", "measure_caps", "signed_rows, seen_rows = _lon_integrals(target, rows, )"): _SAME_CACHE,
+    ("polarflux/measure.py", "measure_caps",
+     "unsigned_rows, _ = _lon_integrals(target, rows, absolute=True, lon_grid=None)"): _SAME_CACHE,
+    ("polarflux/measure.py", "measure_caps", "unsigned_rows, _ = _lon_integrals(target, rows, absolute=True, )"):
+        _SAME_CACHE,
+    ("polarflux/measure.py", "measure_caps", "_, seen_rows = _lon_integrals(m, rows, lon_grid=None)"): _SAME_CACHE,
+    ("polarflux/measure.py", "measure_caps", "_, seen_rows = _lon_integrals(m, rows, )"): _SAME_CACHE,
+    ("polarflux/measure.py", "profile_measures", "profiles = np.asarray(profiles, dtype=None)"): _PROMOTED,
+    ("polarflux/measure.py", "profile_measures", "profiles = np.asarray(profiles, )"): _PROMOTED,
+    ("polarflux/measure.py", "fill_polar_gaps", "br = m.values.astype(None)  # a copy: m is not changed"):
+        _AS_FLOAT64,
+    ("polarflux/measure.py", "fill_polar_gaps",
+     "row_mean = np.divide(row_sum, seen_width, out=None, where=has_data)"): _UNREAD,
+    ("polarflux/measure.py", "fill_polar_gaps", "row_mean = np.divide(row_sum, seen_width, where=has_data)"): _UNREAD,
+    ("polarflux/measure.py", "fill_polar_gaps",
+     "row_mean = np.divide(row_sum, seen_width, out=np.full(rows.size, None), where=has_data)"): _UNREAD,
+    ("polarflux/measure.py", "fill_polar_gaps", "copy=None,"): _COPY,
+    ("polarflux/measure.py", "fill_polar_gaps", ")"): _COPY + " (the line copy=False removed)",
+    ("polarflux/measure.py", "fill_polar_gaps", "copy=True,"): _COPY,
+    ("polarflux/transport/profiles.py", "van_ballegooijen_flow",
+     "return np.where(np.abs(lat) <= cutoff_deg, speed, 0.0)"):
+        "at exactly the cut-off, 75 degrees, the law itself gives v0 sin(180 degrees) = 0 (1e-15 m/s in float64)",
+    ("polarflux/transport/model.py", "_Grid.__init__", "self.cos_face[0] = self.cos_face[-1] = None"):
+        "the polar faces' coefficients are set to zero in _latitude_operator, the only reader of cos_face",
+    ("polarflux/transport/model.py", "_Grid.__init__", "self.cos_face[0] = self.cos_face[-1] = 1.0"):
+        "the polar faces' coefficients are set to zero in _latitude_operator, the only reader of cos_face",
+    ("polarflux/transport/model.py", "FluxTransport._row_factor", "m = self._modes()[None, :].astype(None)"):
+        _AS_FLOAT64,
+    ("polarflux/transport/model.py", "FluxTransport._row_factor",
+     "factor[np.abs(factor) <= _NEGLIGIBLE] = 0.0  # no subnormal numbers, which are very slow"): _NEGLIGIBLE_CUT,
+    ("polarflux/transport/model.py", "FluxTransport._crank_nicolson",
+     "flow = np.asarray(self.flow(g.lat_edges), dtype=None).reshape(-1, 1)"): _PROMOTED,
+    ("polarflux/transport/model.py", "FluxTransport._crank_nicolson",
+     "flow = np.asarray(self.flow(g.lat_edges), ).reshape(-1, 1)"): _PROMOTED,
+    ("polarflux/transport/model.py", "FluxTransport._crank_nicolson",
+     "flow = np.asarray(self.flow(g.lat_edges), dtype=np.float64).reshape(-2, 1)"):
+        "numpy reads any negative size in reshape as 'the rest'",
+    ("polarflux/transport/model.py", "FluxTransport._crank_nicolson",
+     "step[np.abs(step) <= _NEGLIGIBLE * np.abs(step).max()] = 0.0"): _NEGLIGIBLE_CUT,
+    ("polarflux/transport/model.py", "FluxTransport._crank_nicolson",
+     "step[np.abs(step) < _NEGLIGIBLE / np.abs(step).max()] = 0.0"):
+        _NEGLIGIBLE_CUT + " (the step matrix's largest entry is near one)",
+    ("polarflux/transport/model.py", "FluxTransport._spectral", "coefficients = np.fft.rfft(field, ) / self.grid.nlon"):
+        "rfft's default axis is the last: axis 1 of the 2-D field",
+    ("polarflux/transport/model.py", "FluxTransport._spectral",
+     "return coefficients[:, :2].copy() if self.axisymmetric else coefficients"):
+        "the extra column is carried but never read (field() takes column 0; it could only move the negligible-"
+        "number cut if it exceeded the mean field 1e30-fold)",
+    ("polarflux/transport/model.py", "FluxTransport._field", "return state[:, :2].real.copy()"):
+        "an axisymmetric state has one column: [:, :2] is [:, :1]",
+    ("polarflux/transport/model.py", "FluxTransport._field",
+     "return np.fft.irfft(state * self.grid.nlon, n=self.grid.nlon, )"):
+        "irfft's default axis is the last: axis 1 of the 2-D state",
+    ("polarflux/transport/model.py", "Stepper.step",
+     "np.matmul(matrix, state.view(None), out=other.view(np.float64))"): _AS_FLOAT64,
+    ("polarflux/transport/model.py", "Stepper.step",
+     "np.matmul(matrix, state.view(np.float64), out=other.view(None))"): _AS_FLOAT64,
+    ("polarflux/transport/model.py", "Stepper.step", "flat = state.view(None)"): _AS_FLOAT64,
+    ("polarflux/transport/model.py", "Stepper.step", "magnitude = np.abs(flat, out=other.view(None))"): _AS_FLOAT64,
+    ("polarflux/transport/model.py", "Stepper.step", "magnitude = np.abs(flat, out=None)"):
+        "a new array instead of the spare one: the same values",
+    ("polarflux/transport/model.py", "Stepper.step", "magnitude = np.abs(flat, )"):
+        "a new array instead of the spare one: the same values",
+    ("polarflux/transport/model.py", "Stepper.step", "flat[magnitude <= _NEGLIGIBLE * magnitude.max()] = 0.0"):
+        _NEGLIGIBLE_CUT,
+    ("polarflux/calibration.py", "_fit", "def _fit(x: np.ndarray, y: np.ndarray, seed: int = 1, resamples: int = 2000):"):
+        _STATISTICAL,
+    ("polarflux/calibration.py", "_fit", "def _fit(x: np.ndarray, y: np.ndarray, seed: int = 0, resamples: int = 2001):"):
+        _STATISTICAL,
+    ("polarflux/calibration.py", "_fit", "index = rng.integers(x.size, size=(resamples, x.size))"):
+        "integers(n) draws from [0, n) like integers(0, n), from the same stream",
+    ("polarflux/events.py", "find_cycle_extrema", "x = np.asarray(values, dtype=None)"):
+        "float32 or integer values keep their dtype in the returned values but compare, order and subtract as "
+        "their float64 copies (monthly ones are smoothed in float64)",
+    ("polarflux/events.py", "find_cycle_extrema", "x = np.asarray(values, )"):
+        "float32 or integer values keep their dtype in the returned values but compare, order and subtract as "
+        "their float64 copies (monthly ones are smoothed in float64)",
+    ("polarflux/events.py", "find_cycle_extrema",
+     "peak_all = float(np.max(smooth[usable])) if usable.size else 1.0"):
+        "with no usable value the loop that reads peak_all never runs",
+    ("polarflux/events.py", "find_cycle_extrema", "break"):
+        "once a low point near the end is refused, every later one is too: it is no lower (the first lies in its "
+        "window), has risen less and for less time",
+    ("polarflux/events.py", "find_cycle_extrema", "for a, b in zip(minima[:-1], minima[1:], strict=None):"): _STRICT,
+    ("polarflux/events.py", "find_cycle_extrema", "for a, b in zip(minima[:-1], minima[1:], ):"): _STRICT,
+    ("polarflux/events.py", "find_cycle_extrema", "for a, b in zip(minima[:-1], minima[1:], strict=False):"): _STRICT,
+    ("polarflux/events.py", "find_cycle_extrema", "after = tail[tail >= peak]"):
+        "adds the peak itself, which changes after[-1] only when the peak is last, and then 0 years is not 2",
+    ("polarflux/timeseries.py", "smooth_13_month", "x = np.asarray(values, dtype=None)"): _PROMOTED,
+    ("polarflux/timeseries.py", "smooth_13_month", "x = np.asarray(values, )"): _PROMOTED,
+    ("polarflux/timeseries.py", "smooth_13_month", "filled = np.where(None, 0.0, x)"):
+        "what fills a missing month only reaches windows that are set to NaN as holes",
+    ("polarflux/timeseries.py", "smooth_13_month", "filled = np.where(np.isnan(x), 1.0, x)"):
+        "what fills a missing month only reaches windows that are set to NaN as holes",
+    ("polarflux/timeseries.py", "smooth_13_month",
+     'holes = np.convolve(np.isnan(x).astype(None), np.ones(13), mode="valid") > 0'): _AS_FLOAT64,
+    ("polarflux/timeseries.py", "smooth_13_month", "smooth[holes] = None"): "None stored in a float array is NaN",
+    ("polarflux/timeseries.py", "running_mean", "x = np.asarray(values, dtype=None)"): _PROMOTED,
+    ("polarflux/timeseries.py", "running_mean", "x = np.asarray(values, )"): _PROMOTED,
+    ("polarflux/timeseries.py", "running_mean",
+     'counts = np.convolve(finite.astype(None), np.ones(n), mode="valid")'): _AS_FLOAT64,
+    ("polarflux/timeseries.py", "running_mean",
+     "mean = np.divide(sums, counts, out=np.full(sums.shape, None), where=counts >= need)"):
+        "the None left where a window is short becomes NaN when stored in the float result",
+    ("polarflux/precursor.py", "fit_precursor", "y = np.asarray(amplitude, dtype=None)"): _PROMOTED,
+    ("polarflux/precursor.py", "fit_precursor", "y = np.asarray(amplitude, )"): _PROMOTED,
+    ("polarflux/precursor.py", "PrecursorFit._design", "x = np.atleast_1d(np.asarray(x, dtype=None))"): _PROMOTED,
+    ("polarflux/precursor.py", "PrecursorFit._design", "x = np.atleast_1d(np.asarray(x, ))"): _PROMOTED,
+    ("polarflux/precursor.py", "PrecursorFit.predict",
+     "design = self._design(np.ravel(np.asarray(x, dtype=None)))"): "_design converts to float64 itself",
+    ("polarflux/precursor.py", "PrecursorFit.predict", "design = self._design(np.ravel(np.asarray(x, )))"):
+        "_design converts to float64 itself",
+    ("polarflux/precursor.py", "PrecursorFit.predict",
+     'se = self.residual_sd * np.sqrt(1.0 + np.einsum("IJ,JK,IK->I", design, self._inverse, design))'):
+        "einsum takes capital letters as subscripts too: the same contraction",
+    ("polarflux/precursor.py", "PrecursorFit.sample",
+     "return p.median - p.se * rng.standard_t(self.dof, size=np.shape(p.median))"): _SYMMETRIC,
+    ("polarflux/precursor.py", "ProportionalFit.predict",
+     "se = self.residual_sd * math.sqrt(1.0 + 1.0 / self.proxy.size) / np.ones_like(centre)"):
+        "dividing by ones is multiplying by ones",
+    ("polarflux/precursor.py", "ProportionalFit.sample",
+     "return p.median / np.exp(p.se * rng.standard_t(self.dof, size=np.shape(p.median)))"): _SYMMETRIC,
+}
 
 
 def _module(path: str) -> str:
@@ -211,12 +393,17 @@ def run_group(group: Group, base: Path, jobs: int, rev: str | None = None) -> di
     survivors = []
     for name, status in sorted(statuses.items(), key=lambda kv: (kv[0].split("__mutmut_")[0],
                                                                 int(kv[0].rsplit("_", 1)[-1]))):
-        if status == "killed":
+        if status in DETECTED:
             continue
         line = _changed_line(_mutmut(folder, "show", name))
         reason = EQUIVALENT.get((group.path, _function_of(name), line), "")
         survivors.append((name, status, line, reason))
     return {"group": group, "seconds": seconds, "statuses": statuses, "survivors": survivors}
+
+
+#: mutmut's verdicts that count as the tests catching the mutant (a timeout: the tests hung or ran far
+#: past their time on it).
+DETECTED = ("killed", "timeout")
 
 
 def report(results: list[dict], loads: list[float], total_seconds: float, jobs: int, command: str) -> str:
@@ -232,29 +419,32 @@ def report(results: list[dict], loads: list[float], total_seconds: float, jobs: 
            f"on {os.cpu_count()} cores" if loads else "not sampled (run too short)")
         + " (above the core count the run shared the machine and its times are inflated).",
         "",
-        "| module | functions | mutants | killed | survived | timeout | no tests | other | equivalent | score | min |",
-        "|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|",
+        "Score: killed and timed out over all mutants; equivalent survivors are listed below with the reason, "
+        "and the last column leaves them out.",
+        "",
+        "| module | functions | mutants | killed | timeout | survived | no tests | other | equivalent | "
+        "score | score less equivalent | min |",
+        "|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|",
     ]
-    all_total = all_killed = all_equivalent = 0
+    all_total = all_detected = all_equivalent = 0
     for r in results:
         g, st = r["group"], r["statuses"]
-        counts = {k: sum(1 for v in st.values() if v == k) for k in ("killed", "survived", "timeout", "no tests")}
+        counts = {k: sum(1 for v in st.values() if v == k) for k in ("killed", "timeout", "survived", "no tests")}
         other = len(st) - sum(counts.values())
         equivalent = sum(1 for s in r["survivors"] if s[3])
         total = len(st)
-        score = counts["killed"] / total if total else float("nan")
-        all_total, all_killed, all_equivalent = all_total + total, all_killed + counts["killed"], all_equivalent + equivalent
+        detected = counts["killed"] + counts["timeout"]
+        all_total, all_detected, all_equivalent = all_total + total, all_detected + detected, all_equivalent + equivalent
         functions = "all" if g.functions == ("*",) else ", ".join(g.functions)
-        lines.append(f"| `{g.path}` | {functions} | {total} | {counts['killed']} | {counts['survived']} | "
-                     f"{counts['timeout']} | {counts['no tests']} | {other} | {equivalent} | {score:.1%} | "
+        lines.append(f"| `{g.path}` | {functions} | {total} | {counts['killed']} | {counts['timeout']} | "
+                     f"{counts['survived']} | {counts['no tests']} | {other} | {equivalent} | "
+                     f"{detected / max(1, total):.1%} | {detected / max(1, total - equivalent):.1%} | "
                      f"{r['seconds'] / 60:.1f} |")
     if all_total:
-        lines += ["", f"Killed {all_killed} of {all_total} ({all_killed / all_total:.1%}); "
-                  f"{all_equivalent} survivors explained as equivalent; killed among the rest: "
-                  f"{all_killed / max(1, all_total - all_equivalent):.1%}."]
-    lines += ["", "## Survivors", "",
-              "Every mutant not killed (timeouts count as killed by mutmut's own rules only if listed so above), "
-              "with its changed line and, if equivalent, why.", ""]
+        lines += ["", f"All: {all_detected} of {all_total} mutants detected ({all_detected / all_total:.1%}); "
+                  f"{all_equivalent} survivors explained as equivalent; detected among the rest: "
+                  f"{all_detected / max(1, all_total - all_equivalent):.1%}."]
+    lines += ["", "## Survivors", "", "Every mutant not detected, with its changed line and, if equivalent, why.", ""]
     for r in results:
         for name, status, line, reason in r["survivors"]:
             lines.append(f"- `{name}` ({status}): `{line}` — {reason or '**UNEXPLAINED**'}")
@@ -290,8 +480,8 @@ def main(argv=None) -> int:
             print(f"{group.name}: mutating {group.path} ...", flush=True)
             r = run_group(group, base, args.jobs, args.rev)
             st = r["statuses"]
-            killed = sum(1 for v in st.values() if v == "killed")
-            print(f"    {killed}/{len(st)} killed, {len(r['survivors'])} not, {r['seconds']:.0f} s", flush=True)
+            detected = sum(1 for v in st.values() if v in DETECTED)
+            print(f"    {detected}/{len(st)} detected, {len(r['survivors'])} not, {r['seconds']:.0f} s", flush=True)
             results.append(r)
     finally:
         sampler.stop()

@@ -7,7 +7,10 @@ Sources:
   * for delta = 1 it is the total-least-squares line: the direction of the largest singular vector of
     the uncentred matrix [x y] (``numpy.linalg.svd``; Golub & Van Loan, Matrix Computations, sec. 6.3);
   * the percentile bootstrap of a paired statistic: ``scipy.stats.bootstrap(..., paired=True,
-    method="percentile")`` (Efron & Tibshirani 1993).
+    method="percentile")`` (Efron & Tibshirani 1993);
+  * the sample standard deviation with n - 1 (Bessel's correction) and numpy's default percentile, the
+    linear interpolation between order statistics (Hyndman & Fan 1996, definition 7): for two values
+    a < b, sd = (b - a) / sqrt(2), p2.5 = a + 0.025 (b - a), p97.5 = a + 0.975 (b - a).
 """
 
 from __future__ import annotations
@@ -49,6 +52,13 @@ def test_deming_slope_with_equal_variances_is_the_total_least_squares_direction(
     assert deming_through_origin(x, y) == pytest.approx(vt[0, 1] / vt[0, 0], rel=1e-12)
 
 
+def test_deming_slope_of_single_precision_measures_is_computed_in_double_precision():
+    x, y = _data(4)
+    x32, y32 = x.astype(np.float32), y.astype(np.float32)
+    _, _, vt = np.linalg.svd(np.column_stack([x32, y32]).astype(np.float64), full_matrices=False)
+    assert deming_through_origin(x32, y32) == pytest.approx(vt[0, 1] / vt[0, 0], rel=1e-12)
+
+
 def test_deming_slope_of_many_rows_is_each_rows_slope():
     rows = [_data(seed, n=25) for seed in range(4)]
     x, y = np.array([r[0] for r in rows]), np.array([r[1] for r in rows])
@@ -81,3 +91,18 @@ def test_bootstrap_of_exact_pairs_has_no_spread():
     k, sd, low, high = _fit(x, 1.3 * x, resamples=500)
     assert (k, low, high) == pytest.approx((1.3, 1.3, 1.3), rel=1e-12)
     assert sd < 1e-12
+
+
+def test_bootstrap_is_reproducible():
+    """The module documents a fixed seed: the same pairs give the same uncertainty every time."""
+    x, y = _data(5, n=12)
+    assert _fit(x, y) == _fit(x, y)
+
+
+def test_two_resamples_tie_the_spread_to_the_percentiles():
+    x, y = _data(6, n=12)
+    k, sd, low, high = _fit(x, y, resamples=2)
+    assert high > low  # two different resamples
+    a = low - 0.025 * (high - low) / 0.95  # the two slopes, back from the interpolated percentiles
+    b = a + (high - low) / 0.95
+    assert sd == pytest.approx((b - a) / np.sqrt(2.0), rel=1e-12)

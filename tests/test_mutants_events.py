@@ -81,6 +81,20 @@ def test_steps_of_two_months_are_used_as_they_are_and_shorter_ones_smoothed():
         assert len(minima.times) >= 2
 
 
+def test_a_median_step_of_exactly_two_months_is_used_as_it_is():
+    two_months = 2.0 / 12.0
+    steps = np.where(np.arange(179) % 2 == 0, 0.15, 0.18)  # around two months, alternating
+    steps[0] = two_months  # ... and exactly two months once: the median step (89 shorter, 89 longer)
+    t = np.concatenate([[0.0], np.cumsum(steps)])
+    assert np.median(np.diff(t)) == two_months
+    rng = np.random.default_rng(5)
+    x = 100.0 * (1.0 - np.cos(2 * np.pi * t / 10.0)) + rng.uniform(0, 5, t.size) + 20.0
+    minima, _ = pf.find_cycle_extrema(t, x)
+    assert len(minima.times) >= 2
+    for when, value in zip(minima.times, minima.values, strict=True):
+        assert value == x[np.argmin(np.abs(t - when))]  # the raw value: not smoothed
+
+
 def test_seven_and_a_half_year_cycles_are_all_found_with_the_default_separation():
     t = _grid(2000.0, 2046.0)
     x = 100.0 * (1.0 - np.cos(2 * np.pi * (t - 2002.5) / 7.5)) + 5.0
@@ -187,7 +201,7 @@ def test_the_maximum_is_the_highest_value_between_minima_even_next_to_them():
 
 @pytest.mark.parametrize("tail, counted", [
     ([90.0, 80.0, 70.0, 60.0, 40.0], True),    # 2.5 years on and below half
-    ([90.0, 70.0], False),                     # 1 year on: too soon
+    ([90.0, 40.0], False),                     # 1 year on: too soon, though below half
     ([90.0, 80.0, 70.0, 40.0], True),          # exactly 2 years on
     ([90.0, 80.0, 70.0, 60.0, 50.0], False),   # exactly half: not below it
     ([95.0, 90.0, 85.0, 80.0, 75.0, 70.0], False),  # 3 years on, still at 70 %
