@@ -341,7 +341,11 @@ def _prepare(group: Group, folder: Path, rev: str | None) -> None:
 
 
 def _mutmut(folder: Path, *args: str, log: Path | None = None) -> str:
-    command = [str(Path(sys.executable).with_name("mutmut")), *args]
+    beside = Path(sys.executable).with_name("mutmut")
+    program = str(beside) if beside.exists() else shutil.which("mutmut")
+    if program is None:
+        raise SystemExit("mutmut is not installed here: pip install -e '.[dev]' (the dev extra has it)")
+    command = [program, *args]
     # the plugin that empties polarflux's per-grid caches before each test (see _mutation_plugin.py)
     path = os.pathsep.join(filter(None, [str(folder.parent / "_plugin"), os.environ.get("PYTHONPATH")]))
     env = dict(os.environ, PYTHONDONTWRITEBYTECODE="1", PYTHONPATH=path)
