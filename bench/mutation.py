@@ -118,8 +118,9 @@ _STATISTICAL = ("another seed or one resample more is an equally valid bootstrap
                 "(the seed stays fixed; test_bootstrap_is_reproducible)")
 
 #: Survivors that no test can kill: (module file, function, the changed line as mutmut writes it,
-#: stripped) -> why the mutant computes the same thing as the original.
-EQUIVALENT: dict[tuple[str, str, str], str] = {
+#: stripped[, the unchanged line above it, where two mutants write the same line]) -> why the mutant
+#: computes the same thing as the original.
+EQUIVALENT: dict[tuple[str, ...], str] = {
     ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == +90.0] = -1.0"): _SIN90,
     ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == -91.0] = -1.0"): _SIN90,
     ("polarflux/geometry.py", "sine_edges", "s[lat_edges_deg == 91.0] = 1.0"): _SIN90,
@@ -179,7 +180,7 @@ EQUIVALENT: dict[tuple[str, str, str], str] = {
     ("polarflux/measure.py", "fill_polar_gaps",
      "row_mean = np.divide(row_sum, seen_width, out=np.full(rows.size, None), where=has_data)"): _UNREAD,
     ("polarflux/measure.py", "fill_polar_gaps", "copy=None,"): _COPY,
-    ("polarflux/measure.py", "fill_polar_gaps", ")"): _COPY + " (the line copy=False removed)",
+    ("polarflux/measure.py", "fill_polar_gaps", ")", "header=m.header,"): _COPY + " (the line copy=False removed)",
     ("polarflux/measure.py", "fill_polar_gaps", "copy=True,"): _COPY,
     ("polarflux/transport/profiles.py", "van_ballegooijen_flow",
      "return np.where(np.abs(lat) <= cutoff_deg, speed, 0.0)"):
@@ -242,7 +243,8 @@ EQUIVALENT: dict[tuple[str, str, str], str] = {
     ("polarflux/events.py", "find_cycle_extrema",
      "peak_all = float(np.max(smooth[usable])) if usable.size else 1.0"):
         "with no usable value the loop that reads peak_all never runs",
-    ("polarflux/events.py", "find_cycle_extrema", "break"):
+    ("polarflux/events.py", "find_cycle_extrema", "break",
+     "if later < confirm or smooth[usable[-1]] - smooth[i] < CONFIRM_RISE * peak_all:"):
         "once a low point near the end is refused, every later one is too: it is no lower (the first lies in its "
         "window), has risen less and for less time",
     ("polarflux/events.py", "find_cycle_extrema", "for a, b in zip(minima[:-1], minima[1:], strict=None):"): _STRICT,
@@ -363,6 +365,15 @@ def _changed_line(diff: str) -> str:
     return " / ".join(added)
 
 
+def _line_before(diff: str) -> str:
+    """The unchanged line just above the change (tells apart two mutants that write the same line)."""
+    lines = diff.splitlines()
+    for i, line in enumerate(lines):
+        if line.startswith(("-", "+")) and not line.startswith(("---", "+++")):
+            return lines[i - 1][1:].strip() if i and lines[i - 1].startswith(" ") else ""
+    return ""
+
+
 class LoadSampler(threading.Thread):
     """Samples the 1-minute load average every 15 s (two cores: above 2 the run waited for others)."""
 
@@ -399,8 +410,9 @@ def run_group(group: Group, base: Path, jobs: int, rev: str | None = None) -> di
                                                                 int(kv[0].rsplit("_", 1)[-1]))):
         if status in DETECTED:
             continue
-        line = _changed_line(_mutmut(folder, "show", name))
-        reason = EQUIVALENT.get((group.path, _function_of(name), line), "")
+        diff = _mutmut(folder, "show", name)
+        line, key = _changed_line(diff), (group.path, _function_of(name))
+        reason = EQUIVALENT.get((*key, line, _line_before(diff))) or EQUIVALENT.get((*key, line), "")
         survivors.append((name, status, line, reason))
     return {"group": group, "seconds": seconds, "statuses": statuses, "survivors": survivors}
 
