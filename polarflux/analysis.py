@@ -14,7 +14,7 @@ from .events import record_events
 __all__ = ["analyse"]
 
 
-def analyse(record, sunspots=None, bases=("",), members: int = 300, seed: int = 0, as_of=None) -> dict:
+def analyse(record, sunspots=None, bases=("",), members: int = 1000, seed: int = 0, as_of=None) -> dict:
     """Merge the instruments, find the events and (with ``sunspots`` = (times, values)) forecast.
 
     Returns a dict: ``record``, ``merged`` (None when the instruments cannot be brought

@@ -49,8 +49,10 @@ import os
 
 import numpy as np
 
+from .budget import spread_budget
 from .errors import PolarfluxError, SettingsError
 from .precursor import DEFAULT_LAW, LAWS, PrecursorFit, Prediction, ProportionalFit, fit_precursor
+from .projection import _latest_profile, project_to_minimum
 
 __all__ = [
     "CAUTION",
@@ -134,97 +136,6 @@ def read_calibration(path: str | os.PathLike) -> list[dict]:
     if not pairs:
         raise PolarfluxError(f"{source}: holds no calibration pairs; expected {expected}")
     return pairs
-
-
-# --------------------------------------------------------------------------- projection
-
-
-def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, members: int = 300,
-                       seed: int = 0, nlat: int = 180, cap_latitude: float = 60.0,
-                       cycle_length=(11.0, 0.8), earliest: float | None = None, late=None) -> dict:
-    """Evolve a latitude profile to each member's date of minimum with an axisymmetric ensemble.
-
-    Parameters
-    ----------
-    profile : array-like
-        Longitude-averaged radial field now (G), on ``lat_edges`` (degrees), no NaN.
-    now, last_minimum : float
-        Decimal years.
-    members, seed : int
-    cycle_length : (mean, sd)
-        Years from the last minimum to the next.
-    earliest : float, optional
-        The earliest the coming minimum can be (decimal year): the normal distribution of the
-        cycle length is truncated there (a minimum earlier than that would already be
-        confirmed by the data). Default: one rotation after ``now``. Members whose minimum is
-        before ``now`` keep the field of ``now``.
-
-    Returns
-    -------
-    dict of ndarray (members,)
-        ``minimum`` (decimal year), ``axial_dipole``, ``north``, ``south``, ``mean_field``
-        at each member's minimum, and the drawn ``diffusivity``, ``flow_speed``, ``decay_time``.
-    """
-    from .measure import profile_measures
-
-    rng, eta, speed, tau = _ensemble_draws(members, seed)
-    from scipy.stats import truncnorm
-
-    low = now + 27.2753 / 365.25 if earliest is None else float(earliest)
-    mean, sd = cycle_length
-    a = (low - last_minimum - mean) / sd
-    if a > 8.0:  # far past the usual length: within a rotation or so of the bound
-        minimum = low + rng.exponential(sd / a, members)
-    else:
-        minimum = last_minimum + mean + sd * truncnorm.ppf(rng.uniform(0.0, 1.0, members), a, np.inf)
-    horizon = max(float(minimum.max() - now), 27.2753 / 365.25)
-    run, start, edges = _evolve(profile, lat_edges, eta, speed, tau, horizon, nlat, cap_latitude,
-                                None if late is None else late.deposit)
-    when = now + run["time"].values
-    out = {"minimum": minimum, "diffusivity": eta, "flow_speed": speed, "decay_time": tau}
-    for name, var in (("axial_dipole", "axial_dipole"), ("north", "north_mean_field"), ("south", "south_mean_field")):
-        series = run[var].values
-        out[name] = np.array([np.interp(minimum[k], when, series[k]) for k in range(members)])
-    out["mean_field"] = 0.5 * (np.abs(out["north"]) + np.abs(out["south"]))
-    measures = profile_measures(start, edges, cap_latitude)
-    out["now"] = {k: float(v) for k, v in measures.items()}
-    return out
-
-
-def _ensemble_draws(members: int, seed: int):
-    """The ensemble's transport parameters: diffusivity (km^2/s), peak flow (m/s), decay time (yr)."""
-    rng = np.random.default_rng(seed)
-    eta = rng.uniform(250.0, 600.0, members)
-    speed = rng.uniform(8.0, 15.0, members)
-    tau = np.where(rng.random(members) < 0.25, np.inf, rng.uniform(5.0, 10.0, members))
-    return rng, eta, speed, tau
-
-
-def _evolve(profile, lat_edges, eta, speed, tau, years: float, nlat: int, cap_latitude: float, deposit=None):
-    """Run the axisymmetric ensemble from a profile; the run, the start on the model rows, the model edges."""
-    from .geometry import regrid_conservative
-    from .transport import TransportEnsemble
-    from .transport.model import model_grid
-
-    edges, _ = model_grid(nlat, 1)
-    start = regrid_conservative(np.asarray(profile, dtype=np.float64)[:, None], lat_edges, [0.0, 360.0],
-                                edges, [0.0, 360.0])[:, 0]
-    ensemble = TransportEnsemble(nlat=nlat, diffusivity=eta, flow_speed=speed, decay_time=tau)
-    run = ensemble.run(start, years=years, step_days=5.0, save_every_days=27.2753, cap_latitude=cap_latitude,
-                       deposit=deposit)
-    return run, start, edges
-
-
-def _run_ensemble(profile, lat_edges, now: float, years: float, members: int, seed: int, cap_latitude: float,
-                  deposit=None, nlat: int = 180):
-    """Each member's axial dipole ``years`` after the start, and the model's dipole at the start."""
-    from .measure import profile_measures
-
-    _, eta, speed, tau = _ensemble_draws(members, seed)
-    run, start, edges = _evolve(profile, lat_edges, eta, speed, tau, years, nlat, cap_latitude, deposit)
-    times, dipole = run["time"].values, run["axial_dipole"].values
-    at = np.array([np.interp(years, times, dipole[k]) for k in range(members)])
-    return at, float(profile_measures(start, edges, cap_latitude)["axial_dipole"])
 
 
 # --------------------------------------------------------------------------- forecast
@@ -333,68 +244,6 @@ def _fill_relative_error(merged) -> float:
     return float(min(np.mean(error[good]) / np.mean(field[good]), 1.0))
 
 
-def _latest_profile(record, merged, as_of_ns, bases=("",)):
-    """Longitude-averaged field of the latest readable map at or before ``as_of``, on the reference scale."""
-    import json
-
-    from .maps import read_map
-    from .measure import fill_polar_gaps
-
-    factors = {(f["instrument"], f["quantity"]): f["factor"]
-               for f in json.loads(merged.attrs.get("scale_factors", "[]"))}
-    fields = record["map_field"].values.astype(str) if "map_field" in record else None
-    times = record["time"].values.astype("datetime64[ns]")
-    for i in np.argsort(times)[::-1]:
-        if times[i] > as_of_ns:
-            continue
-        candidates = [os.path.join(b, str(record["source"].values[i])) for b in bases]
-        found = [c for c in candidates if os.path.exists(c)]
-        if not found:
-            continue
-        path = found[0]
-        field = fields[i] if fields is not None and fields[i] in ("radial", "los") else "radial"
-        try:  # read as the record read it: line-of-sight maps converted to radial field
-            m = fill_polar_gaps(read_map(path, field=field), float(record.attrs.get("cap_deg", 60.0)))
-        except PolarfluxError:
-            continue
-        values = np.where(np.isfinite(m.values), m.values, np.nan)
-        profile = np.nanmean(values, axis=1)
-        profile = np.where(np.isfinite(profile), profile, 0.0)
-        scale = factors.get((str(record["instrument"].values[i]), "polar"), 1.0)
-        return profile * scale, m.lat_edges, path, times[i], _anchor(merged, times[i])
-    return None
-
-
-def _anchor(merged, when) -> dict:
-    """The proxies the projection is anchored to, as the calibration sees them, and their errors.
-
-    The merged record's viewing-corrected polar mean field (mean of north and minus south) and
-    axial dipole, each on the reference scale with its own factor (as the merge applied them),
-    smoothed as a straight line fitted to the last 13 rotations up to ``when`` and taken at
-    ``when`` (a centred 13-rotation mean, as at the calibration's minima, needs half a year of
-    later data). The errors are the line's standard error there.
-    """
-    from .timeseries import to_decimal_year
-
-    t, _ = to_decimal_year(merged["time"].values)
-    now = float(to_decimal_year(np.array([when], dtype="datetime64[ns]"))[0][0])
-    corrected = merged["mean_field_corrected"].values
-    series = {"mean_field": 0.5 * (corrected[:, 0] - corrected[:, 1]), "axial_dipole": merged["axial_dipole"].values}
-    out, errors = {}, {}
-    for name, y in series.items():
-        good = np.flatnonzero(np.isfinite(y) & (t <= now + 1e-9))[-13:]
-        if good.size < 4:
-            out[name], errors[name] = (abs(float(y[good[-1]])) if good.size else np.nan), 0.0
-            continue
-        design = np.column_stack([np.ones(good.size), t[good] - now])
-        beta, *_ = np.linalg.lstsq(design, y[good], rcond=None)
-        residual = y[good] - design @ beta
-        cov = np.linalg.inv(design.T @ design) * float(residual @ residual) / (good.size - 2)
-        out[name], errors[name] = abs(float(beta[0])), float(np.sqrt(cov[0, 0]))
-    out["errors"] = errors
-    return out
-
-
 def _late_emergence(past, merged, events, t_ssn, v_ssn, bases, last_minimum, as_of_year, now, members, seed, cap):
     """The late-emergence fit on the record's earlier minima and the source for this projection (or Nones)."""
     from .emergence import DecliningCycle, LateEmergence, fit_flux_scale
@@ -418,7 +267,7 @@ def public_result(result: dict) -> dict:
 
 
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
-                         calibration: list[dict] | None = None, as_of=None, members: int = 300, seed: int = 0,
+                         calibration: list[dict] | None = None, as_of=None, members: int = 1000, seed: int = 0,
                          viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW) -> dict:
     """The whole forecast from a measured record and a sunspot series.
 
@@ -487,7 +336,9 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # the one forecast, from the proxy measured at its minimum (no projection needed)
         fill_relative = _fill_relative_error(merged)
         rng = np.random.default_rng(seed + 2)
-        scale = np.maximum(1.0 + rng.normal(0.0, rising["relative_error"], members), 0.1)
+        draw = rng.normal(0.0, rising["relative_error"], members)
+        scale = np.maximum(1.0 + draw, 0.1)
+        drivers = {"proxy measured at the minimum": draw}
         projection = {"minimum": np.full(members, minima[-1]), proxy: rising[proxy] * scale,
                       "north": rising["north"] * scale, "south": rising["south"] * scale}
         now = minima[-1]
@@ -515,10 +366,18 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         anchor_relative = measured["errors"][proxy] / measured[proxy] if measured[proxy] > 0 else 0.0
         # the projection's misfit on the record's earlier minima beyond the ensemble's own spread
         extra = late_fit.extra_relative_error if late_fit is not None else 0.0
-        relative = float(np.sqrt(fill_relative**2 + anchor_relative**2 + extra**2))
-        if relative > 0:
-            spread = np.random.default_rng(seed + 2).normal(0.0, relative, np.size(projection[proxy]))
-            projection[proxy] = projection[proxy] * np.maximum(1.0 + spread, 0.1)
+        # the anchor map's instrument brought onto the reference scale: its factor's uncertainty
+        cross = measured.get("cross_calibration", {}).get(proxy, 0.0)
+        rng = np.random.default_rng(seed + 2)
+        scales = {name: rng.normal(0.0, sd, members) if sd > 0 else np.zeros(members)
+                  for name, sd in (("fill of the unseen pole", fill_relative), ("anchor", anchor_relative),
+                                   ("projection misfit on earlier minima", extra),
+                                   ("cross-calibration", cross))}
+        projection[proxy] = projection[proxy] * np.maximum(np.prod([1.0 + d for d in scales.values()], axis=0), 0.1)
+        drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
+                       [projection["diffusivity"], projection["flow_speed"], 1.0 / projection["decay_time"]]),
+                   "date of minimum": projection["minimum"],
+                   **({"late emergence": late.dipole_added} if late is not None else {}), **scales}
         projection_kind = (f"transport ensemble from {path}, anchored to the record's smoothed, viewing-corrected "
                            f"{proxy} there ({100 * anchor_relative:.0f} % error); " + (
                                late_fit.describe() if late_fit is not None else
@@ -531,8 +390,16 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         rng = np.random.default_rng(seed)
         minimum = np.maximum(minima[-1] + rng.normal(11.0, 0.8, members), as_of_year + 0.08)
         projection = {"minimum": minimum, proxy: rng.normal(recent.mean(), recent.std(ddof=1), members)}
+        drivers = {"persistence of the latest proxy": projection[proxy], "date of minimum": minimum}
         now, projection_kind = as_of_year, "persistence of the latest proxy (no readable map)"
     result = forecast_next_cycle(fit, projection[proxy], projection["minimum"], seed=seed + 1)
+    declining = None
+    if rising is None:  # the old cycle's decline, fitted on the series so far: it overlaps the new one's rise
+        from .emergence import DecliningCycle
+
+        fitted = DecliningCycle.fit(t_ssn, v_ssn, minima[-1], as_of_year)
+        declining = {"start": fitted.start, "shape_a": fitted.shape_a, "scale": fitted.scale}
+    budget = spread_budget(fit, result["samples"]["amplitude"], projection[proxy], drivers)
     if rising is not None:
         phase = {"phase": "rising", "cycle_start": minima[-1],
                  "text": f"the cycle that began at the minimum of {format_date(minima[-1])} (rising, its maximum "
@@ -564,10 +431,12 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
                        "fill_relative_error": fill_relative,
                        "late_emergence": None if late_fit is None else late_fit.as_dict(),
+                       "declining_cycle": declining,
                        "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"],
                        **{f"{name}_at_minimum": _summary(projection[name])
                           for name in ("north", "south", "axial_dipole") if name in projection}},
-        "forecast": {"amplitude": result["amplitude"], "maximum_time": result["maximum_time"]},
+        "forecast": {"amplitude": result["amplitude"], "maximum_time": result["maximum_time"],
+                     "spread_budget": budget},
         "samples": result["samples"],
         "fit": fit,
         "caution": CAUTION,

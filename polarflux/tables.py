@@ -28,6 +28,9 @@ def forecast_text(result: dict) -> str:
         f"95 %: {a['low95']:.0f}-{a['high95']:.0f})",
         f"next maximum: {format_date(m['median'])} (68 %: {format_date(m['low68'])} to {format_date(m['high68'])}; "
         f"95 %: {format_date(m['low95'])} to {format_date(m['high95'])})",
+        *([("spread of the amplitude (share of its variance): "
+            + ", ".join(f"{k} {100 * v:.0f} %" for k, v in sorted(fc["spread_budget"].items(), key=lambda kv: -kv[1])))]
+          if fc.get("spread_budget") else []),
         "caution: " + result["caution"],
     ]
     if cal.get("warning"):

@@ -226,7 +226,7 @@ def test_anchor_is_the_last_years_line_at_the_map_time_with_its_standard_error()
     # map's time (summary_frame mean and mean_se)
     import xarray as xr
 
-    from polarflux.forecast import _anchor
+    from polarflux.projection import _anchor
 
     rng = np.random.default_rng(3)
     times = np.datetime64("2050-01-15") + np.arange(40) * np.timedelta64(27 * 86400 + 6 * 3600, "s")
@@ -276,3 +276,7 @@ def test_late_emergence_fitted_on_earlier_minima_improves_their_hindcasts(hindca
     assert late["relative_rms"] < late["relative_rms_without"]
     assert len({round(h["minimum"], 2) for h in late["hindcasts"]}) >= 2
     assert "late emergence" in result["projection"]["method"]
+    budget = result["forecast"]["spread_budget"]
+    assert sum(budget.values()) == pytest.approx(1.0)
+    assert {"calibration (precursor law and its scatter)", "projection physics (diffusivity, flow, decay)",
+            "date of minimum", "late emergence", "anchor"} <= set(budget)

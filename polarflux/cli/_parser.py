@@ -91,7 +91,7 @@ def build_parser() -> argparse.ArgumentParser:
                           f"(amplitude = k x proxy with a log-normal scatter: one parameter) (default: {DEFAULT_LAW})")
     forecast.add_argument("--proxy", choices=("axial_dipole", "mean_field"), default="axial_dipole",
                           help="polar proxy at minimum (default: axial_dipole)")
-    forecast.add_argument("--members", type=int, default=300, metavar="N", help="ensemble members (default: 300)")
+    forecast.add_argument("--members", type=int, default=1000, metavar="N", help="ensemble members (default: 1000)")
     forecast.add_argument("--seed", type=int, default=0, help="random seed of the ensemble (default: 0)")
     forecast.add_argument("--as-of", metavar="DATE", help="forecast as on this date (YYYY-MM-DD): a hindcast")
     forecast.add_argument("--out", metavar="PREFIX", help="output prefix (default: RECORD without suffix + _forecast)")
