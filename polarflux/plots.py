@@ -219,6 +219,14 @@ def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, capt
     future = np.linspace(result["as_of"], end, 240)
     count = min(400, samples["amplitude"].size)
     curves = _cycle_curves(samples["amplitude"][:count], minima[:count], future)
+    declining = (result.get("projection") or {}).get("declining_cycle")
+    if declining:  # the old cycle's fitted decline runs on under the new cycle's rise
+        from .emergence import DecliningCycle
+
+        old = DecliningCycle(**declining)(future)
+        curves = curves + old[None, :]
+        ax.plot(dates(future), old, color="black", linestyle="--", linewidth=1.0,
+                label="declining cycle (fitted shape)")
     low95, low68, mid, high68, high95 = np.percentile(curves, [2.5, 16, 50, 84, 97.5], axis=0)
     ax.fill_between(dates(future), low95, high95, color="#1f5fa6", alpha=0.18, label="95 % range")
     ax.fill_between(dates(future), low68, high68, color="#1f5fa6", alpha=0.35, label="68 % range")

@@ -356,3 +356,32 @@ def test_fan_chart_draws_only_what_existed_and_reaches_past_the_maximum():
     median_curve = np.asarray(lines["median at each date"].get_ydata(), float)
     assert median_curve.max() <= summary["median"] + 1e-9  # what the caption says
     assert "members peak at different times" in fig.texts[-1].get_text().replace("\n", " ")
+
+
+def test_fan_chart_continues_the_declining_cycle_under_the_new_one():
+    # the old cycle's fitted decline is drawn, and the fan starts from it, not from zero: at the forecast
+    # date the median curve equals the written-out HWR shape (Hathaway, Wilson & Reichmann 1994,
+    # b = 27.12 + 25.15 / (1000 a)^(1/4), c = 0.71) of the declining cycle there
+    from polarflux.plots import plot_forecast_fan
+
+    t = 2040.0 + (np.arange(12 * 30) + 0.5) / 12.0
+    v = 80.0 * np.clip(np.sin(2 * np.pi * (t - 2040.0) / 11.0), 0, None) + 5.0
+    n = 200
+    amplitude = np.full(n, 120.0)
+    minimum = np.full(n, 2063.0)
+    maximum = minimum + 4.5
+    summary = {k: 120.0 for k in ("median", "low68", "high68", "low95", "high95")}
+    peak = {k: 2067.5 for k in ("median", "low68", "high68", "low95", "high95")}
+    start, a, scale = 2052.0, 0.0025, 1.1
+    result = {"as_of": 2060.5, "samples": {"amplitude": amplitude, "minimum_time": minimum, "maximum_time": maximum},
+              "forecast": {"amplitude": summary, "maximum_time": peak},
+              "projection": {"declining_cycle": {"start": start, "shape_a": a, "scale": scale}}}
+    fig = plot_forecast_fan(result, t, v)
+    lines = {line.get_label(): line for line in fig.axes[0].get_lines()}
+    assert "declining cycle (fitted shape)" in lines
+    x = (2060.5 - start) * 12.0
+    b = 27.12 + 25.15 / (1000.0 * a) ** 0.25
+    expected = scale * a * x**3 / (np.exp((x / b) ** 2) - 0.71)
+    median = np.asarray(lines["median at each date"].get_ydata(), float)
+    assert expected > 5.0
+    assert median[0] == pytest.approx(expected, rel=1e-6)
