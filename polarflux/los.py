@@ -44,7 +44,7 @@ import numpy as np
 
 from .errors import MapFormatError
 
-__all__ = ["column_b0", "los_to_radial", "field_in_header", "FIELDS", "LOS_MAX_FACTOR"]
+__all__ = ["column_b0", "los_to_radial", "row_shape_integrals", "cap_shape_exponent", "field_in_header", "FIELDS", "LOS_MAX_FACTOR"]
 
 #: What a map holds: "auto" reads the header (:func:`field_in_header`), "radial" and "los" say it.
 FIELDS = ("auto", "radial", "los")
@@ -149,7 +149,7 @@ def column_b0(header: Mapping, lon: np.ndarray, rotation: int | None, time, sour
 
 
 def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_factor: float = LOS_MAX_FACTOR,
-                  block_rows: int = 64, lat_edges: np.ndarray | None = None) -> None:
+                  block_rows: int = 64, lat_edges: np.ndarray | None = None, shape_caps: bool = True) -> None:
     """Divide line-of-sight field by cos(latitude - B0), in place, the factor capped at ``max_factor``.
 
     ``values`` is (nlat, nlon) float64, ``lat`` the row latitudes and ``b0`` the
@@ -163,6 +163,19 @@ def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_facto
     the row's centre is not (the rows next to a pole of a coarse sine-latitude
     grid span 10 degrees or more). Works in blocks of rows, so the factor array
     never takes the map's whole size.
+
+    A row's value is the average of B_r cos(phi - B0) over it, so where B_r rises
+    steeply across a row (the polar caps of a coarse grid: a sin^20 cap read on 90
+    sine-latitude rows comes out 2-3 % low with the uniform divisor) the divisor
+    must be weighted by B_r itself. With ``lat_edges`` and ``shape_caps``, each
+    cap's rows reaching poleward of :data:`SHAPE_FROM_DEG` are divided again by
+
+        (cos B0 I1 + sin B0 I2) / I0     (:func:`row_shape_integrals`)
+
+    for the shape |sin phi|^n fitted to the cap's row means
+    (:func:`cap_shape_exponent`; sin^8 where no shape fits: a cap of mixed sign,
+    near a reversal). n = 0 is the uniform divisor above. On a 90-row grid this
+    takes sin^20-sin^40 caps from 1.5-6 % low to within 0.3 % (tests/test_los.py).
     """
     if not max_factor >= 1.0:
         raise ValueError(f"max_factor must be at least 1, got {max_factor}")
@@ -170,6 +183,13 @@ def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_facto
     b0_rad = np.deg2rad(np.asarray(b0, dtype=float))[None, :]
     lat_rad = np.deg2rad(np.asarray(lat, dtype=float))
     edges = None if lat_edges is None else np.deg2rad(np.asarray(lat_edges, dtype=float))
+    polar = []
+    if edges is not None and shape_caps:
+        reach = np.maximum(np.abs(edges[:-1]), np.abs(edges[1:]))
+        for sign in (1, -1):
+            picked = np.flatnonzero((reach > np.deg2rad(SHAPE_FROM_DEG)) & (sign * (edges[:-1] + edges[1:]) > 0))
+            if picked.size:
+                polar.append((values[picked].copy(), picked))
     for start in range(0, values.shape[0], block_rows):
         rows = slice(start, start + block_rows)
         if edges is None:
@@ -180,6 +200,76 @@ def los_to_radial(values: np.ndarray, lat: np.ndarray, b0: np.ndarray, max_facto
             cosine = ((np.sin(2 * b - b0_rad) - np.sin(2 * a - b0_rad)) / 4 + (b - a) * np.cos(b0_rad) / 2) \
                 / (np.sin(b) - np.sin(a))
         values[rows] /= np.maximum(cosine, floor)
+    if edges is not None and shape_caps:
+        for raw, picked in polar:
+            _shape_cap_rows(values, raw, picked, edges, b0_rad, floor)
+
+
+#: Exponents n tried for the cap's shape |sin latitude|^n inside its rows (0: uniform within each row).
+SHAPE_EXPONENTS = tuple(range(0, 81, 2))
+#: Rows reaching poleward of this |latitude| (degrees) take the shaped divisor.
+SHAPE_FROM_DEG = 60.0
+#: The shape taken where none can be fitted: the polar field's sin^8 fall-off (Svalgaard et al. 1978).
+SHAPE_PRIOR = 8
+_SHAPE_MIN_R2 = 0.5
+_GAUSS = np.polynomial.legendre.leggauss(16)
+
+
+def row_shape_integrals(a: np.ndarray, b: np.ndarray, n: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Over rows from latitude ``a`` to ``b`` (radians), with w = |sin phi|^n:
+
+    I0 = int w cos phi dphi,  I1 = int w cos^2 phi dphi,  I2 = int w sin phi cos phi dphi.
+
+    I0 and I2 in closed form, I1 by 16-point Gauss-Legendre quadrature in latitude
+    (smooth there; in sin(latitude) it has a square-root end point). A row's
+    line-of-sight value over its radial one is then (cos B0 I1 + sin B0 I2) / I0.
+    """
+    sa, sb = np.sin(a), np.sin(b)
+    i0 = (np.sign(sb) * np.abs(sb) ** (n + 1) - np.sign(sa) * np.abs(sa) ** (n + 1)) / (n + 1)
+    i2 = (np.abs(sb) ** (n + 2) - np.abs(sa) ** (n + 2)) / (n + 2)
+    x, w = _GAUSS
+    phi = 0.5 * (a + b)[..., None] + 0.5 * (b - a)[..., None] * x
+    i1 = 0.5 * (b - a) * ((np.abs(np.sin(phi)) ** n * np.cos(phi) ** 2) @ w)
+    return i0, i1, i2
+
+
+def cap_shape_exponent(row_means: np.ndarray, a: np.ndarray, b: np.ndarray) -> int:
+    """The exponent n of SHAPE_EXPONENTS whose B_p |sin|^n best fits a cap's row means.
+
+    Rows are weighted by their area; where the best fit explains less than half of the
+    rows' variance about zero (a cap of mixed sign, near a reversal) or fewer than
+    three rows are seen, :data:`SHAPE_PRIOR` (sin^8).
+    """
+    good = np.isfinite(row_means)
+    if good.sum() < 3:
+        return SHAPE_PRIOR
+    y, a, b = row_means[good], a[good], b[good]
+    area = np.abs(np.sin(b) - np.sin(a))
+    best, best_n = np.inf, 0
+    for n in SHAPE_EXPONENTS:
+        f = np.abs(row_shape_integrals(a, b, n)[0]) / area
+        bp = np.sum(area * y * f) / np.sum(area * f * f)
+        residual = np.sum(area * (y - bp * f) ** 2)
+        if residual < best:
+            best, best_n = residual, n
+    return best_n if best <= (1.0 - _SHAPE_MIN_R2) * np.sum(area * y * y) else SHAPE_PRIOR
+
+
+def _shape_cap_rows(values, raw, picked, edges, b0_rad, floor) -> None:
+    """Divide one cap's rows again, by cos(latitude - B0) averaged with the cap's fitted shape as weight."""
+    a, b = edges[:-1][picked], edges[1:][picked]
+    for _ in range(2):  # the shape from the plain division, then from the shaped one
+        rows = values[picked]
+        counts = np.isfinite(rows).sum(axis=1)
+        means = np.full(picked.size, np.nan)
+        enough = counts >= 0.5 * values.shape[1]
+        means[enough] = np.nansum(rows[enough], axis=1) / counts[enough]
+        n = cap_shape_exponent(means, a, b)
+        if n == 0:
+            return
+        i0, i1, i2 = row_shape_integrals(a, b, n)
+        cosine = (np.cos(b0_rad) * i1[:, None] + np.sin(b0_rad) * i2[:, None]) / i0[:, None]
+        values[picked] = raw / np.maximum(cosine, floor)
 
 
 def field_in_header(header: Mapping) -> str:

@@ -155,3 +155,76 @@ def test_column_b0_prefers_the_header_polynomial():
     assert "B0COLk" in how
     b0, how = column_b0({"CRLT_OBS": 5.0}, lon, None, None)
     assert np.all(b0 == 5.0) and "CRLT_OBS" in how
+
+
+@pytest.mark.parametrize("n", [0, 8, 40])
+def test_row_shape_integrals_match_quadrature(n):
+    # reference: scipy.integrate.quad of the three integrals as defined, on a coarse polar row, an
+    # equatorial one and a southern one
+    from scipy.integrate import quad
+
+    from polarflux.los import row_shape_integrals
+
+    rows = np.deg2rad([[77.88, 90.0], [10.0, 12.0], [-90.0, -77.88], [58.0, 66.0]])
+    i0, i1, i2 = row_shape_integrals(rows[:, 0], rows[:, 1], n)
+
+    def w(p):
+        return abs(np.sin(p)) ** n
+
+    for k, (a, b) in enumerate(rows):
+        assert i0[k] == pytest.approx(quad(lambda p: w(p) * np.cos(p), a, b)[0], rel=1e-9, abs=1e-15)
+        assert i1[k] == pytest.approx(quad(lambda p: w(p) * np.cos(p) ** 2, a, b)[0], rel=1e-9, abs=1e-15)
+        assert i2[k] == pytest.approx(quad(lambda p: w(p) * np.sin(p) * np.cos(p), a, b)[0], rel=1e-9, abs=1e-15)
+
+
+def _steep_cap_los(n, b0, nrows=90, ncols=36, limb=82.0):
+    """A 10 G |sin|^n cap (odd) seen at B0 on a coarse sine grid: each row the area average of
+    B_r cos(latitude - B0), by scipy.integrate.quad in latitude (area element cos(latitude))."""
+    from scipy.integrate import quad
+
+    m = pf.SynopticMap.from_array(np.zeros((nrows, ncols)))
+    e = np.deg2rad(m.lat_edges)
+    b = np.deg2rad(b0)
+    rows = np.array([quad(lambda p: 10 * np.sign(p) * abs(np.sin(p)) ** n * np.cos(p - b) * np.cos(p), e[k], e[k + 1])[0]
+                     / (np.sin(e[k + 1]) - np.sin(e[k])) for k in range(nrows)])
+    los = np.repeat(rows[:, None], ncols, axis=1)
+    los[np.abs(m.lat - b0) > limb] = np.nan
+    return m, los
+
+
+@pytest.mark.parametrize("n,b0", [(20, 7.0), (40, 5.0), (40, 0.0), (20, -5.0)])
+def test_a_steep_cap_on_a_coarse_grid_comes_back(tmp_path, n, b0):
+    # The top row of 90 sine-latitude rows spans 77.9-90 degrees; a field rising steeply across it
+    # needs the divisor weighted by the field itself. Truth over the seen rows from the first row
+    # centred poleward of 60 degrees, in closed form: 10 (s1^(n+1) - s0^(n+1)) / ((n + 1)(s1 - s0))
+    # with s0, s1 the sines of their outer edges (rows beyond 82 degrees from the disk centre unseen).
+    from polarflux.los import los_to_radial
+
+    m, los = _steep_cap_los(n, b0)
+    path = write_fits(tmp_path / "steep.fits", los, cea_header(90, 36, B0COL0=b0))
+    got = pf.read_map(path, field="los")
+    rows = np.flatnonzero((m.lat >= 60.0) & np.isfinite(los[:, 0]))
+    assert np.all(np.diff(rows) == 1) and rows.size >= 4
+    s = np.sin(np.deg2rad(m.lat_edges))
+    s0, s1 = s[rows[0]], min(1.0, s[rows[-1] + 1])
+    truth = 10 * (s1 ** (n + 1) - s0 ** (n + 1)) / ((n + 1) * (s1 - s0))
+    w = np.diff(s)[rows]
+    assert np.sum(got.br[rows, 0] * w) / w.sum() == pytest.approx(truth, rel=3e-3)
+    plain = los.copy()
+    los_to_radial(plain, m.lat, np.full(36, b0), lat_edges=m.lat_edges, shape_caps=False)
+    assert abs(np.sum(plain[rows, 0] * w) / w.sum() / truth - 1) > 0.01  # what the shape removes
+
+
+def test_the_cap_shape_is_fitted_where_one_fits_and_the_sin8_prior_taken_where_none_does():
+    from polarflux.los import SHAPE_PRIOR, cap_shape_exponent, row_shape_integrals
+
+    e = np.deg2rad(pf.SynopticMap.from_array(np.zeros((90, 4))).lat_edges)[-8:]
+    a, b = e[:-1], e[1:]
+    area = np.sin(b) - np.sin(a)
+    for n in (6, 24):  # exact row means of 5 |sin|^n: the exponent comes back
+        assert cap_shape_exponent(5 * row_shape_integrals(a, b, n)[0] / area, a, b) == n
+    # a cap near its reversal, or too few rows: no shape fits, the sin^8 fall-off is taken
+    mixed = np.array([3.0, -2.0, 4.0, -3.5, 2.5, -4.0, 3.0])
+    assert SHAPE_PRIOR == 8
+    assert cap_shape_exponent(mixed, a, b) == SHAPE_PRIOR
+    assert cap_shape_exponent(np.array([np.nan, np.nan, 1.0, 2.0, np.nan, np.nan, np.nan]), a, b) == SHAPE_PRIOR
