@@ -233,7 +233,7 @@ def _centres_from_edges(lat_edges: np.ndarray, grid: str) -> np.ndarray:
 
 def read_map(
     path: Any,
-    field: str = "radial",
+    field: str = "auto",
     plane: int | None = None,
     los_max_factor: float = LOS_MAX_FACTOR,
 ) -> SynopticMap:
@@ -248,7 +248,8 @@ def read_map(
     field : {"radial", "los", "auto"}
         "radial": radial field. "los": line-of-sight field, converted to radial by
         dividing by cos(latitude - B0) (see :mod:`polarflux.los`), the factor capped
-        at ``los_max_factor``. "auto": "los" where the header has MAPFIELD = 'LOS'.
+        at ``los_max_factor``. "auto" (the default, as for the measure command):
+        "los" where the header's MAPFIELD says line of sight, else "radial".
     plane : int, optional
         For a cube (3-D or more: a stack of realizations), the index of the map
         to read, counted over the planes in file order (the slowest FITS axis
@@ -287,7 +288,7 @@ def read_map(
         return _assemble(image.read(index, field, los_max_factor, verify=True))
 
 
-def read_planes(path: Any, field: str = "radial", los_max_factor: float = LOS_MAX_FACTOR) -> Iterator[SynopticMap]:
+def read_planes(path: Any, field: str = "auto", los_max_factor: float = LOS_MAX_FACTOR) -> Iterator[SynopticMap]:
     """Read every map of a cube (a stack of realizations), each once, in file order.
 
     Parameters

@@ -228,3 +228,13 @@ def test_the_cap_shape_is_fitted_where_one_fits_and_the_sin8_prior_taken_where_n
     assert SHAPE_PRIOR == 8
     assert cap_shape_exponent(mixed, a, b) == SHAPE_PRIOR
     assert cap_shape_exponent(np.array([np.nan, np.nan, 1.0, 2.0, np.nan, np.nan, np.nan]), a, b) == SHAPE_PRIOR
+
+
+def test_read_map_follows_the_header_by_default(tmp_path):
+    # a library call with no field given reads MAPFIELD as the measure command does: a line-of-sight
+    # map is not returned as if it were radial
+    path, m, radial = los_map(tmp_path, "los.fits", np.full(720, 5.0), limb=84.0, B0COL0=5.0, MAPFIELD="LOS")
+    plain = pf.read_map(path)
+    np.testing.assert_array_equal(plain.br, pf.read_map(path, field="los").br)
+    assert "B0COLk" in plain.los_b0_how
+    assert not np.allclose(plain.br, pf.read_map(path, field="radial").br, equal_nan=True)
