@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from .events import from_decimal_year
-from .plots import _add_caption, _new_axes
+from .plots import _new_axes, add_forecast_caption
 
 __all__ = ["plot_cycle_evolution", "plot_pit", "plot_error_by_lead", "hindcast_outputs", "write_outputs",
            "CSV_COLUMNS"]
@@ -52,10 +52,9 @@ def plot_cycle_evolution(result, cycle: str, ax=None, caption: str | None = None
     ax.set_ylim(bottom=0.0)
     ax.set_xlabel("date the forecast was made (UTC)")
     ax.set_ylabel("cycle amplitude (13-month smoothed sunspot number)")
-    ax.set_title(f"Forecast of {cycle} as it evolved")
+    ax.set_title(f"Next-cycle amplitude forecast by the date it was made ({cycle})")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
-    if caption:
-        _add_caption(fig, caption)
+    add_forecast_caption(fig, caption)
     return fig
 
 
@@ -71,8 +70,7 @@ def plot_pit(result, ax=None, caption: str | None = None, bins: int = 10):
     ax.set_ylabel("forecasts per bin")
     ax.set_title(f"PIT histogram ({pit.size} scored forecasts)")
     ax.legend(loc="upper center", fontsize="x-small")
-    if caption:
-        _add_caption(fig, caption)
+    add_forecast_caption(fig, caption)
     return fig
 
 
@@ -103,8 +101,7 @@ def plot_error_by_lead(result, ax=None, caption: str | None = None, edges=None):
     ax.set_ylabel("relative error of the median (%)")
     ax.set_title("Forecast error against lead")
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
-    if caption:
-        _add_caption(fig, caption)
+    add_forecast_caption(fig, caption)
     return fig
 
 

@@ -118,12 +118,22 @@ def _finish(fig, ax, ylabel: str, title: str, caption: str | None, legend_title:
     return fig
 
 
+#: The caution every figure showing a forecast carries, at its foot.
+FIGURE_CAUTION = ("Forecasts are probabilistic: operations that affect crew or spacecraft safety follow the "
+                  "responsible agencies' official space-weather forecasts and local rules.")
+
+
+def add_forecast_caption(fig, caption: str | None) -> None:
+    """The caption (if any), then the forecast caution, at the figure's foot."""
+    _add_caption(fig, f"{caption.rstrip('. ')}. {FIGURE_CAUTION}" if caption else FIGURE_CAUTION)
+
+
 def _add_caption(fig, caption: str) -> None:
     """Small grey text along the bottom edge, wrapped to the figure's width, with room kept for it."""
     import textwrap
 
     width = max(60, int(fig.get_figwidth() * 17))  # x-small characters per inch of figure, about
-    lines = textwrap.wrap(caption, width) or [""]
+    lines = textwrap.wrap(caption, width, break_on_hyphens=False) or [""]
     engine = fig.get_layout_engine()
     if engine is not None and hasattr(engine, "set"):
         bottom = 0.045 + 0.03 * (len(lines) - 1)
@@ -248,8 +258,7 @@ def plot_forecast_fan(result: dict, sunspot_times, sunspot_values, ax=None, capt
     ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize="x-small", borderaxespad=0.0)
     note = ("Only data that existed on the forecast date; the smoothed line stops six months before it. The median "
             "curve peaks below the median amplitude because members peak at different times.")
-    _add_caption(fig, f"{caption}. {note}" if caption else
-                 f"{note} A forecast is probabilistic; operations follow the official space-weather forecasts.")
+    add_forecast_caption(fig, f"{caption}. {note}" if caption else note)
     return fig
 
 
@@ -281,8 +290,7 @@ def plot_calibration(result: dict, ax=None, caption: str | None = None):
     ax.set_title("Precursor calibration")
     ax.set_ylim(bottom=0.0)
     ax.legend(loc="upper left", fontsize="x-small")
-    if caption:
-        _add_caption(fig, caption)
+    add_forecast_caption(fig, caption)
     return fig
 
 

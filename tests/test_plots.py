@@ -291,6 +291,7 @@ def test_calibration_bands_stop_at_zero():
     fitted = next(line for line in ax.lines if line.get_label().startswith("fit"))
     y = np.asarray(fitted.get_ydata(), dtype=float)
     assert np.nanmin(y) >= 0 and np.isnan(y[0])  # the line ends where the fit reaches zero
+    assert "official space-weather forecasts" in ax.figure.texts[-1].get_text().replace("\n", " ")
 
 
 def test_butterfly_rows_are_missing_exactly_where_the_map_has_no_data(tmp_path):
@@ -356,6 +357,10 @@ def test_fan_chart_draws_only_what_existed_and_reaches_past_the_maximum():
     median_curve = np.asarray(lines["median at each date"].get_ydata(), float)
     assert median_curve.max() <= summary["median"] + 1e-9  # what the caption says
     assert "members peak at different times" in fig.texts[-1].get_text().replace("\n", " ")
+    # the caution at the foot, with or without a caption of the caller's
+    for figure in (fig, plot_forecast_fan(result, t, v, caption="invented record")):
+        foot = figure.texts[-1].get_text().replace("\n", " ")
+        assert "official space-weather forecasts" in foot and "crew or spacecraft" in foot
 
 
 def test_fan_chart_continues_the_declining_cycle_under_the_new_one():
