@@ -160,7 +160,7 @@ def _calibration_cycles(t_rec: np.ndarray, t_ssn: np.ndarray, v_ssn: np.ndarray)
 
 
 def forecast_dates(record, sunspot_times, sunspot_values, every="3M", start=None, end=None,
-                   min_cycles: int = 3) -> np.ndarray:
+                   min_cycles: int = 3, skipped: list | None = None) -> np.ndarray:
     """The default hindcast dates: a calendar grid across the record where enough cycles can calibrate.
 
     Parameters
@@ -175,6 +175,8 @@ def forecast_dates(record, sunspot_times, sunspot_values, every="3M", start=None
         Limits (default: the first map's time to the end of the last map's rotation).
     min_cycles : int
         Calibration cycles needed, each judged from what existed on the date only.
+    skipped : list, optional
+        Receives the grid dates left out (too few calibration cycles by then).
 
     Returns
     -------
@@ -196,7 +198,10 @@ def forecast_dates(record, sunspot_times, sunspot_values, every="3M", start=None
     for date in grid:
         ts, vs = cut_sunspots(t_ssn, v_ssn, date)
         keep.append(_calibration_cycles(t_rec[available <= date], ts, vs) >= min_cycles)
-    return grid[np.array(keep, dtype=bool)] if grid.size else grid
+    keep = np.array(keep, dtype=bool)
+    if skipped is not None and grid.size:
+        skipped.extend(float(d) for d in grid[~keep])
+    return grid[keep] if grid.size else grid
 
 
 # --------------------------------------------------------------------------- one forecast
@@ -469,8 +474,9 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
         t_ssn, v_ssn = (np.asarray(a, dtype=np.float64) for a in sunspots)
     # the outcomes first: a truth file that cannot be read fails before the long run, not after it
     outcomes = outcomes_from_truth(truth) if truth is not None else outcomes_from_series(t_ssn, v_ssn)
+    skipped: list[float] = []
     if dates is None:
-        dates = forecast_dates(record, t_ssn, v_ssn, every=every, start=start, end=end)
+        dates = forecast_dates(record, t_ssn, v_ssn, every=every, start=start, end=end, skipped=skipped)
         if dates.size == 0:
             raise SettingsError(f"no forecast date every {every}: on no date between the limits do the record and "
                                 f"{source} hold three cycles to calibrate on (a minimum the record covers, "
@@ -507,6 +513,9 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
         "forecast_options": json.dumps({k: (v if isinstance(v, (str, int, float, bool)) else repr(v))
                                         for k, v in forecast_options.items()}),
         "created_by": f"polarflux {__version__}",
+        # grid dates left out: fewer than three cycles to calibrate on had existed by then
+        "dates_skipped": ", ".join(str(d)[:10] for d in from_decimal_year(np.array(skipped, dtype=np.float64), True)
+                                   .astype("datetime64[D]")) if skipped else "",
     })
 
 

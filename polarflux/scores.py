@@ -122,10 +122,15 @@ def format_lead_table(rows: list[dict]) -> str:
     for r in rows:
         a, b = r["lead_range"]
         lines.append(f"{a:+5.1f} to {b:+4.1f} {r['scored']:>4} {r['failures']:>4} "
-                     f"{100 * r['median_abs_relative_error']:>11.1f}% {_fmt_cov(r['coverage68']):>18} "
-                     f"{_fmt_cov(r['coverage95']):>18} {r['crps']:>7.1f} {r['crps_climatology']:>9.1f} "
-                     f"{r['crps_skill']:>6.2f}")
+                     f"{_num(100 * r['median_abs_relative_error'], '.1f', '%'):>12} {_fmt_cov(r['coverage68']):>18} "
+                     f"{_fmt_cov(r['coverage95']):>18} {_num(r['crps'], '.1f'):>7} "
+                     f"{_num(r['crps_climatology'], '.1f'):>9} {_num(r['crps_skill'], '.2f'):>6}")
     return "\n".join(lines)
+
+
+def _num(value, spec: str, suffix: str = "") -> str:
+    """A number as text, "n/a" where there is none (a lead bin with no scored forecast)."""
+    return f"{value:{spec}}{suffix}" if value is not None and math.isfinite(value) else "n/a"
 
 
 def summary_line(result, window: tuple[float, float] = (-2.0, 1.0)) -> str:

@@ -211,6 +211,14 @@ def test_default_dates_are_a_calendar_grid_where_three_cycles_can_calibrate(worl
     assert np.allclose(np.diff(dates), 0.25, atol=0.01)
     yearly = forecast_dates(record, t, v, every="1Y", start="2045-01-01", end=2050.5)
     assert np.allclose(yearly, [2045.0, 2046.0, 2047.0, 2048.0, 2049.0, 2050.0])
+    # dates asked for where three cycles had not yet ended are left out, and named
+    skipped = []
+    early = forecast_dates(record, t, v, every="1Y", start="2027-01-01", end=2032.5, skipped=skipped)
+    assert np.allclose(np.sort(np.r_[early, skipped]), [2027.0, 2028.0, 2029.0, 2030.0, 2031.0, 2032.0])
+    assert skipped and max(skipped) < early.min()
+    run = hindcast(record, (t, v), every="1Y", start="2027-01-01", end=2032.5, members=20)
+    assert run.attrs["dates_skipped"].split(", ")[0] == "2027-01-01"
+    assert len(run.attrs["dates_skipped"].split(", ")) == len(skipped)
     with pytest.raises(pf.SettingsError, match="every"):
         forecast_dates(record, t, v, every="quarterly")
 
@@ -335,6 +343,12 @@ def test_summaries_by_lead_with_clopper_pearson_intervals():
     assert everything["coverage95"][0] == pytest.approx(7 / 8)
     line = summary_line(table)
     assert "9 forecasts, 1 failed" in line and "CRPS skill" in line
+    from polarflux.scores import format_lead_table
+
+    text = format_lead_table(rows + [{**rows[0], "scored": 0, "median_abs_relative_error": np.nan, "crps": np.nan,
+                                      "crps_climatology": np.nan, "crps_skill": np.nan}])
+    assert "20.0%" in text.splitlines()[1] and "0.30" in text.splitlines()[1]
+    assert "nan" not in text and text.splitlines()[-1].split()[-1] == "n/a"  # an empty bin says so
 
 
 # --------------------------------------------------------------------------- outputs
@@ -378,6 +392,8 @@ def test_figures_draw_what_the_table_holds(world):
     assert "sunspot number" in ax.get_ylabel() and "date" in ax.get_xlabel()
     assert any("invented record" in text.get_text() for text in fig.texts)
     assert ax.get_ylim()[0] == 0.0
+    for figure in (fig, plot_pit(result), plot_error_by_lead(result)):  # the caution at every figure's foot
+        assert any("official space-weather forecasts" in text.get_text().replace("\n", " ") for text in figure.texts)
 
     pit = plot_pit(result).axes[0]
     heights = [p.get_height() for p in pit.patches]

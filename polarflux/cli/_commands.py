@@ -247,6 +247,9 @@ def hindcast(args, parser) -> int:
     written = hc.write_hindcast(result, prefix, force=args.force, caption=f"polarflux hindcast: {record_path}")
     print(hc.format_lead_table(hc.lead_table(result)))
     print(hc.summary_line(result))
+    if result.attrs.get("dates_skipped"):
+        print(f"dates left out (fewer than three cycles to calibrate on had ended by then): "
+              f"{result.attrs['dates_skipped']}")
     print("outputs: " + ", ".join(str(p) for p in written))
     print("caution: hindcast scores describe the method on past cycles; a forecast is probabilistic, and "
           "operations follow the official space-weather forecasts.")
