@@ -109,6 +109,8 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
         tmp.write_text(json.dumps(found, indent=1, default=float), encoding="utf-8")
     result = analysis["forecast"]
     if result is not None:
+        print(f"the demo forecasts as of {format_date(as_of)}, two years before the scenario's minimum, so the truth "
+              "below can check a forecast made ahead of it; polarflux forecast without --as-of uses the latest data")
         print(forecast_text(result))
         print(f"truth: cycle {target['cycle']} amplitude {target['amplitude']:.0f}, maximum "
               f"{format_date(start + target['maximum_years'])} (the scenario's own relation, with its random factor "
