@@ -317,7 +317,11 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     past = cut_record(record, as_of_year)
     t_ssn, v_ssn = cut_sunspots(t_ssn, v_ssn, as_of_year)
     if past.sizes["time"] < 13:
-        raise SettingsError("the record before the forecast date is shorter than a year")
+        times = np.sort(record["time"].values.astype("datetime64[ns]"))
+        times = times[~np.isnat(times)]
+        first = f" (its first map is from {str(times[0])[:10]})" if times.size else ""
+        raise SettingsError(f"the record before the forecast date {format_date(as_of_year)} holds "
+                            f"{past.sizes['time']} maps, fewer than a year of rotations (13){first}")
     merged = merge_instruments(past, viewing=viewing)
     events = record_events(merged, t_ssn, v_ssn)
     pairs = calibration if calibration is not None else calibration_from_events(events, proxy)

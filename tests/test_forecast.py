@@ -202,6 +202,10 @@ def test_as_of_after_the_data_is_refused_and_the_date_prints_as_given(hindcast_s
     assert main(["forecast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--as-of", when,
                  "--members", "40"]) == 0
     assert f"as of {when}" in capsys.readouterr().out
+    # before the data: the message says where the data begin
+    first = str(np.sort(record["time"].values)[0])[:10]
+    with pytest.raises(pf.SettingsError, match=f"holds 0 maps.*first map is from {first}"):
+        forecast_from_record(record, t, v, as_of=float(first[:4]) - 5.0, members=20)
 
 
 def test_after_a_minimum_the_rising_cycle_is_forecast_from_its_measured_minimum(hindcast_scenario):
