@@ -69,7 +69,9 @@ def plot_pit(result, ax=None, caption: str | None = None, bins: int = 10):
     ax.set_xlabel("PIT: fraction of the forecast sample below the outcome")
     ax.set_ylabel("forecasts per bin")
     ax.set_title(f"PIT histogram ({pit.size} scored forecasts)")
-    ax.legend(loc="upper center", fontsize="x-small")
+    counts = np.histogram(pit, bins=np.linspace(0.0, 1.0, bins + 1))[0]
+    ax.set_ylim(0.0, 1.35 * max(float(counts.max(initial=0)), pit.size / bins, 1.0))  # room above the bars
+    ax.legend(loc="upper center", fontsize="x-small", ncols=2)
     add_forecast_caption(fig, caption)
     return fig
 

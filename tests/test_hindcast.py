@@ -399,6 +399,7 @@ def test_figures_draw_what_the_table_holds(world):
     heights = [p.get_height() for p in pit.patches]
     assert sum(heights) == np.isfinite(result["pit"].values).sum()
     assert pit.get_xlim() == (0.0, 1.0) and "PIT" in pit.get_xlabel()
+    assert pit.get_ylim()[1] >= 1.3 * max(heights)  # room for the legend above the tallest bar
 
     err = plot_error_by_lead(result).axes[0]
     points = err.lines[0]
