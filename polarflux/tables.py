@@ -62,9 +62,10 @@ def events_table(found: dict) -> str:
     lines.append(f"{'event':<18} {'hemisphere':<10} {'date':<10}  {'window':<23}  value")
     for hemisphere in ("north", "south"):
         for r in found["reversals"][hemisphere]:
-            window = f"{format_date(r['earliest'])}..{format_date(r['latest'])}" if r["latest"] > r["earliest"] else "-"
+            first, last = format_date(r["earliest"]), format_date(r["latest"])
+            window = f"{first}..{last}" if r["latest"] > r["earliest"] and first != last else "-"
             lines.append(f"{'polar reversal':<18} {hemisphere:<10} {format_date(r['time']):<10}  {window:<23}  "
-                         f"now {'+' if r['new_sign'] > 0 else '-'}")
+                         f"to {'+' if r['new_sign'] > 0 else '-'}")  # the report's words
     for lag in found["reversal_lags"]:
         lines.append(f"{'reversal lag':<18} {'S - N':<10} {format_date(lag['north']):<10}  {'':<23}  {lag['lag_years']:+.2f} yr")
     for m in found["minima"]:
