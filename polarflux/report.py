@@ -208,8 +208,10 @@ def _events_html(events: dict, have_sunspots: bool) -> str:
     for m in events["maxima"]:
         rows.append(["cycle maximum", "", format_date(m["time"]), "", f"SSN {m['sunspot_number']:.1f}"])
     for a in events["at_minima"]:
+        north, south = (_signed(a[h]) + (f" ± {a[h + '_fill_error']:.2f}" if np.isfinite(
+            a.get(h + "_fill_error", np.nan)) else "") for h in ("north", "south"))  # as the terminal's table
         rows.append(["polar fields at minimum", "N / S / dipole", format_date(a["time"]), "",
-                     f"{_signed(a['north'])} / {_signed(a['south'])} / {_signed(a['axial_dipole'], ' G')}; "
+                     f"{north} / {south} / {_signed(a['axial_dipole'], ' G')}; "
                      f"asymmetry {_signed(a['asymmetry'])}"])
     out = _table(["event", "hemisphere", "date", "window", "value"], rows) if rows else \
         "<p>No polar reversal in the record.</p>"

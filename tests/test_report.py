@@ -97,6 +97,10 @@ def test_events_table_shows_a_reversal_window_only_when_it_has_width(record):
     assert "<td></td>" in rows[1] and " to 2055" not in rows[1]  # earliest == latest: no range
     assert "nan" not in page.lower().replace("nanosecond", "")
     assert "+5.00 / – / +2.00 G" in page
+    # the fill's uncertainty at a minimum, as the terminal's table gives it
+    events["at_minima"] = [{**events["at_minima"][0], "north_fill_error": 0.26, "south_fill_error": float("nan")}]
+    page = report_html({**result, "events": events}, {}, "tiny", "tiny.nc")
+    assert "+5.00 ± 0.26 / – / +2.00 G" in page
 
 
 def test_plot_commands_draw_a_record_that_cannot_be_merged(unmerged, tmp_path, capsys):
