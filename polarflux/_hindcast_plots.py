@@ -63,13 +63,13 @@ def plot_pit(result, ax=None, caption: str | None = None, bins: int = 10):
     fig, ax = _new_axes(ax, size=(6.5, 4.5))
     pit = result["pit"].values
     pit = pit[np.isfinite(pit)]
-    ax.hist(pit, bins=np.linspace(0.0, 1.0, bins + 1), color=_FORECAST, edgecolor="white", label="forecasts")
+    counts, _, _ = ax.hist(pit, bins=np.linspace(0.0, 1.0, bins + 1), color=_FORECAST, edgecolor="white",
+                           label="forecasts")
     ax.axhline(pit.size / bins, color=_OUTCOME, linestyle="--", linewidth=1.2, label="calibrated (uniform)")
     ax.set_xlim(0.0, 1.0)
     ax.set_xlabel("PIT: fraction of the forecast sample below the outcome")
     ax.set_ylabel("forecasts per bin")
     ax.set_title(f"PIT histogram ({pit.size} scored forecasts)")
-    counts = np.histogram(pit, bins=np.linspace(0.0, 1.0, bins + 1))[0]
     ax.set_ylim(0.0, 1.35 * max(float(counts.max(initial=0)), pit.size / bins, 1.0))  # room above the bars
     ax.legend(loc="upper center", fontsize="x-small", ncols=2)
     add_forecast_caption(fig, caption)

@@ -40,11 +40,12 @@ cycle emerge (Cameron, Jiang & Schuessler 2016, ApJL 823, L22; Hathaway & Upton
 
 from __future__ import annotations
 
-import functools
 import math
 from dataclasses import dataclass
 
 import numpy as np
+
+from .geometry import dipole_row_weights
 
 __all__ = ["DecliningCycle", "LateEmergence", "fit_flux_scale", "unit_ring_pair"]
 
@@ -102,20 +103,6 @@ class DecliningCycle:
         from .synthetic import cycle_shape
 
         return self.scale * cycle_shape((np.asarray(years, dtype=np.float64) - self.start) * 12.0, self.shape_a)
-
-
-@functools.lru_cache(maxsize=8)
-def _weights_for(edges: tuple) -> np.ndarray:
-    from .geometry import SOLAR_RADIUS_CM
-
-    e = np.deg2rad(np.asarray(edges))
-    area = 2.0 * math.pi * SOLAR_RADIUS_CM**2 * np.diff(np.sin(e))
-    return 3.0 / (4.0 * math.pi * SOLAR_RADIUS_CM**2) * area * np.sin(0.5 * (e[:-1] + e[1:]))
-
-
-def _dipole_weights(edges: np.ndarray) -> np.ndarray:
-    """Axial dipole (G) of a longitude-mean field on ``edges`` is these weights times the field."""
-    return _weights_for(tuple(np.asarray(edges, dtype=float).tolist()))
 
 
 def unit_ring_pair(lat_edges, latitude: float, tilt: float, width: float) -> np.ndarray:
@@ -201,7 +188,8 @@ class LateEmergence:
             sign = self.north_sign  # the north's following polarity; the mirror flips the south's sign already
             out += sign * flux * (profile[:, None] * joy_part[None, :]
                                   + (tilt_profile[:, None] * scatter_part[None, :] if self.rng is not None else 0.0))
-        self.dipole_added += _dipole_weights(edges) @ out
+        # axial dipole of a longitude-mean field: 3/2 times the integral of B sin(latitude) d(sin latitude)
+        self.dipole_added += 1.5 * dipole_row_weights(edges) @ out
         return out
 
     def _strength_counts(self, expected: float) -> tuple[np.ndarray, np.ndarray]:
