@@ -10,7 +10,10 @@ wall time with the number of cores.
 
     python bench/hindcast.py [--preset hard] [--seeds 5] [--cycles 5] [--every 6M] [--jobs 2]
                              [--members 100] [--grid coarse|low] [--dask local|ADDRESS] [--out PREFIX]
-                             [--law linear proportional]
+                             [--law linear proportional] [--worlds DIR]
+
+``--worlds DIR`` keeps the generated worlds in DIR (``DIR/<preset>-<grid>-<cycles>-cycles-world<seed>``) and reuses those
+already there, so that two versions of the forecast can be scored on the same worlds.
 """
 
 from __future__ import annotations
@@ -92,13 +95,20 @@ def main() -> None:
     parser.add_argument("--out", default=None, help="write the CSV tables and figures with this prefix")
     parser.add_argument("--law", nargs="+", default=["linear"], choices=("linear", "proportional"),
                         help="the precursor law(s): each is scored on the same worlds and dates")
+    parser.add_argument("--worlds", default=None,
+                        help="keep the worlds in this folder and reuse those already made there")
     args = parser.parse_args()
     seeds = list(range(args.first_seed, args.first_seed + args.seeds))
     clock = time.perf_counter()
     with tempfile.TemporaryDirectory() as tmp:
-        work = [(os.path.join(tmp, f"world{s}"), args.preset, s, args.cycles, args.grid) for s in seeds]
+        home = args.worlds or tmp
+        os.makedirs(home, exist_ok=True)
+        work = [(os.path.join(home, f"{args.preset or 'default'}-{args.grid}-{args.cycles}-cycles-world{s}"), args.preset, s, args.cycles, args.grid) for s in seeds]
+        ready = [w for w in work if os.path.exists(os.path.join(w[0], "record.nc"))]
         with ProcessPoolExecutor(max_workers=args.jobs) as pool:
-            made = list(pool.map(make_world, work))
+            fresh = dict(zip((w[0] for w in work if w not in ready),
+                             pool.map(make_world, [w for w in work if w not in ready]), strict=True))
+        made = [fresh.get(w[0], (w[0], 0.0)) for w in work]
         generated = time.perf_counter() - clock
         print(f"worlds: {len(seeds)} x {args.cycles} cycles, preset {args.preset or 'default'}, {args.grid} grid, "
               f"seeds {seeds[0]}-{seeds[-1]}; generated and measured in {generated:.0f} s "

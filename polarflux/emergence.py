@@ -226,11 +226,47 @@ class FluxScaleFit:
         """The part of the hindcast misfit the ensemble's own spread does not cover (0 if none)."""
         return float(math.sqrt(max(self.relative_rms**2 - self.ensemble_relative_sd**2, 0.0)))
 
+    @property
+    def log_error_per_year(self) -> float:
+        """a in the projection's log error a x lead, fitted on these hindcasts: sqrt(mean((ln(projected /
+        measured) / lead)^2)). A projection of the wrong sign, or below a tenth of the measured dipole,
+        counts as a factor-10 miss (its log is undefined or unbounded)."""
+        rows = [(h[1], h[2], h[4]) for h in self.hindcasts if h[1] > 0]
+        if not rows:
+            return 0.0
+        lead, measured, projected = (np.array(c, dtype=np.float64) for c in zip(*rows, strict=True))
+        ratio = np.abs(projected) / measured
+        # a projection of the wrong sign or below a tenth of the measured dipole: count it as a factor-10 miss
+        logs = np.log(np.where(np.sign(projected) == np.sign(measured), np.maximum(ratio, 0.1), 0.1))
+        return float(np.sqrt(np.mean((logs / lead) ** 2)))
+
+    @property
+    def minima(self) -> int:
+        """How many earlier minima the hindcasts come from."""
+        return len({round(h[0], 6) for h in self.hindcasts})
+
+    def log_error_at(self, lead_years: float, upper: bool = True) -> float:
+        """The projection's log error expected at a lead (years before the minimum): a x lead.
+
+        With ``upper`` (the default), a is raised to its one-sided 84 % upper bound, as for a
+        standard deviation estimated from k degrees of freedom: a sqrt(k / chi2_0.16(k)), with k
+        the number of earlier minima (the hindcasts of one minimum at several leads share its
+        measured dipole and its cycle, so they are not independent). A few lucky hindcasts then
+        cannot make the forecast overconfident.
+        """
+        a = self.log_error_per_year
+        if upper and self.minima > 0:
+            from scipy.stats import chi2
+
+            a *= math.sqrt(self.minima / chi2.ppf(0.16, self.minima))
+        return a * max(float(lead_years), 0.0)
+
     def as_dict(self) -> dict:
         """Plain data for the forecast's JSON output."""
         return {"flux_scale_mx": self.flux_scale, "standard_error_mx": self.standard_error,
                 "relative_rms": self.relative_rms, "relative_rms_without": self.relative_rms_without,
                 "ensemble_relative_sd": self.ensemble_relative_sd, "extra_relative_error": self.extra_relative_error,
+                "log_error_per_year": self.log_error_per_year,
                 "hindcasts": [dict(zip(("minimum", "lead_years", "measured", "without", "with"), h, strict=True))
                               for h in self.hindcasts]}
 

@@ -26,7 +26,10 @@ of the minimum (the last minimum plus a cycle length of 11.0 +/- 0.8 years,
 truncated at the earliest date the minimum can have without being confirmed yet).
 The declining cycle's remaining regions emerge in every member
 (:mod:`polarflux.emergence`), their flux per region fitted on the record's own
-earlier minima; the misfit there beyond the ensemble's spread widens the members.
+earlier minima. The projection's error on those minima, as a function of lead, widens the
+members where it exceeds their spread, and the record's own distribution of the proxy at its
+minima (a Student-t prior) then weighs them: far from the minimum the forecast leans on the
+record (:func:`~polarflux.projection.shrink_to_prior`).
 
 Forecast
 --------
@@ -45,6 +48,7 @@ rules, not this tool.
 from __future__ import annotations
 
 import csv
+import math
 import os
 
 import numpy as np
@@ -52,7 +56,7 @@ import numpy as np
 from .budget import spread_budget
 from .errors import PolarfluxError, SettingsError
 from .precursor import DEFAULT_LAW, LAWS, PrecursorFit, Prediction, ProportionalFit, fit_precursor
-from .projection import _latest_profile, project_to_minimum
+from .projection import _latest_profile, project_to_minimum, record_prior, shrink_to_prior
 
 __all__ = [
     "CAUTION",
@@ -232,6 +236,31 @@ def _passed_peak(events: dict, last_minimum: float, t_ssn, v_ssn) -> float | Non
     return float(t[peak]) if t[since[-1]] - t[peak] > max(0.5, 1.01 * cadence) else None
 
 
+def _log_spread(values) -> float:
+    """Standard deviation of ln |values| over the non-zero ones (0 with fewer than two)."""
+    v = np.abs(np.asarray(values, dtype=np.float64))
+    v = v[v > 0]
+    return float(np.std(np.log(v), ddof=1)) if v.size > 1 else 0.0
+
+
+def _date_log_spread(values, minimum_times) -> float:
+    """The part of ln |values|' spread that follows the members' dates of minimum (a straight-line fit)."""
+    v = np.abs(np.asarray(values, dtype=np.float64))
+    t = np.asarray(minimum_times, dtype=np.float64)
+    keep = v > 0
+    if keep.sum() < 3 or np.std(t[keep]) == 0:
+        return 0.0
+    slope = np.polyfit(t[keep], np.log(v[keep]), 1)[0]
+    return float(abs(slope) * np.std(t[keep], ddof=1))
+
+
+def _proxies_at_minima(events: dict, proxy: str) -> list[float]:
+    """The proxy's magnitude measured at each minimum of the record so far."""
+    if proxy == "mean_field":
+        return [0.5 * (abs(a["north"]) + abs(a["south"])) for a in events.get("at_minima", [])]
+    return [abs(a[proxy]) for a in events.get("at_minima", [])]
+
+
 def _fill_relative_error(merged) -> float:
     """The fill uncertainty of the latest year of the merged record, relative to its mean polar field."""
     if "fill_error" not in merged:
@@ -332,6 +361,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         raise SettingsError("no cycle minimum in the sunspot series before the forecast date")
     fill_relative = 0.0
     late_fit = None
+    shrink = None
     peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
     rising = _rising_cycle(events, minima[-1], as_of_year, proxy, peak)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
@@ -368,16 +398,35 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # year's values: each member's scale is drawn from both
         fill_relative = _fill_relative_error(merged)
         anchor_relative = measured["errors"][proxy] / measured[proxy] if measured[proxy] > 0 else 0.0
-        # the projection's misfit on the record's earlier minima beyond the ensemble's own spread
-        extra = late_fit.extra_relative_error if late_fit is not None else 0.0
         # the anchor map's instrument brought onto the reference scale: its factor's uncertainty
         cross = measured.get("cross_calibration", {}).get(proxy, 0.0)
         rng = np.random.default_rng(seed + 2)
         scales = {name: rng.normal(0.0, sd, members) if sd > 0 else np.zeros(members)
                   for name, sd in (("fill of the unseen pole", fill_relative), ("anchor", anchor_relative),
-                                   ("projection misfit on earlier minima", extra),
                                    ("cross-calibration", cross))}
         projection[proxy] = projection[proxy] * np.maximum(np.prod([1.0 + d for d in scales.values()], axis=0), 0.1)
+        # the members' spread is the transport ensemble's idea of the projection's error; the record's own
+        # hindcasts say what it was at this lead on earlier minima (ensemble calibration on past forecasts,
+        # as in Gneiting et al. 2005): bring the members to that log spread, plus what the unknown date of
+        # the minimum adds (the hindcasts knew their minima), and never below the anchor's own error
+        lead = float(np.median(projection["minimum"])) - now
+        lead_error = late_fit.log_error_at(lead) if late_fit is not None else None
+        target = None
+        if lead_error is not None:
+            target = max(math.hypot(lead_error, _date_log_spread(projection[proxy], projection["minimum"])),
+                         math.sqrt(fill_relative**2 + anchor_relative**2 + cross**2))
+            spread = _log_spread(projection[proxy])
+            if target > spread:  # wider: an extra draw per member, a term of the budget of its own
+                extra = math.sqrt(target**2 - spread**2)
+                misfit = rng.normal(0.0, extra, members)
+                scales["projection's error at this lead on earlier minima"] = misfit
+                projection[proxy] = np.abs(projection[proxy]) * np.exp(misfit)
+        # then what the record's minima so far say of the proxy (its prior) weighs the members: far from
+        # the minimum, where the projection knows little, the forecast leans on the record
+        projection[proxy], shrink = shrink_to_prior(projection[proxy], record_prior(_proxies_at_minima(events, proxy)),
+                                                    log_sd=target)
+        shrink["lead_log_error"] = lead_error
+        shrink["lead_years"] = lead
         drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
                        [projection["diffusivity"], projection["flow_speed"], 1.0 / projection["decay_time"]]),
                    "date of minimum": projection["minimum"],
@@ -387,6 +436,12 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                                late_fit.describe() if late_fit is not None else
                                "late emergence left out (fewer than two earlier minima to fit its flux on): "
                                "the projection is low by what the declining cycle still emerges"))
+        if shrink["prior_median"] is not None and abs(shrink["median_after"] / shrink["median_before"] - 1.0) >= 0.005:
+            projection_kind += (f"; {lead:.1f} years before the minimum (where the projection erred by "
+                                f"{100 * (lead_error or 0.0):.0f} % in log on earlier minima), the record's "
+                                f"{len(_proxies_at_minima(events, proxy))} minima ({proxy} median "
+                                f"{shrink['prior_median']:.2f}) move the projection's median from {shrink['median_before']:.2f} to "
+                                f"{shrink['median_after']:.2f}")
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread
         values = np.abs(merged["axial_dipole"].values if proxy == "axial_dipole"
                         else np.nanmean(np.abs(merged["mean_field_corrected"].values), axis=1))
@@ -435,6 +490,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         "projection": {"method": projection_kind, "from": now, "members": int(np.size(projection["minimum"])),
                        "fill_relative_error": fill_relative,
                        "late_emergence": None if late_fit is None else late_fit.as_dict(),
+                       "record_prior": shrink,
                        "declining_cycle": declining,
                        "proxy_at_minimum": result["proxy"], "minimum_time": result["minimum_time"],
                        **{f"{name}_at_minimum": _summary(projection[name])

@@ -12,7 +12,7 @@ import numpy as np
 
 from .errors import PolarfluxError
 
-__all__ = ["project_to_minimum"]
+__all__ = ["project_to_minimum", "record_prior", "shrink_to_prior"]
 
 
 def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, members: int = 300,
@@ -65,6 +65,84 @@ def project_to_minimum(profile, lat_edges, now: float, last_minimum: float, memb
     measures = profile_measures(start, edges, cap_latitude)
     out["now"] = {k: float(v) for k, v in measures.items()}
     return out
+
+
+#: The spread of ln |proxy| at minima assumed before the record speaks, and its weight in cycles
+#: (from memory: the Sun's polar fields at the minima measured since the 1970s differ by up to a
+#: factor of two, a log standard deviation of about 0.25).
+PRIOR_LOG_SD = 0.25
+PRIOR_DOF = 2
+
+
+def record_prior(values, prior_log_sd: float = PRIOR_LOG_SD, prior_dof: int = PRIOR_DOF) -> dict | None:
+    """The record's own distribution of the proxy at a minimum, in log space (None with fewer than three).
+
+    ``values`` are the proxy's magnitudes measured at the record's minima so far. Their logs
+    are taken as normal with unknown mean (flat prior) and variance (scaled inverse chi-square
+    prior: ``prior_log_sd`` with ``prior_dof`` degrees of freedom, so that three minima that
+    happen to agree closely cannot claim the next one will too). The next one then follows a
+    Student t with prior_dof + n - 1 degrees of freedom about the sample mean, with the scale
+    sqrt((prior_dof prior_log_sd^2 + (n - 1) s^2) / (prior_dof + n - 1)) sqrt(1 + 1/n)
+    (Gelman et al. 2013, *Bayesian Data Analysis*, 3rd ed., sect. 3.3; s the sample standard
+    deviation).
+    """
+    v = np.abs(np.asarray(values, dtype=np.float64))
+    v = v[np.isfinite(v) & (v > 0)]
+    if v.size < 3:
+        return None
+    logs = np.log(v)
+    n = v.size
+    dof = prior_dof + n - 1
+    pooled = (prior_dof * prior_log_sd**2 + (n - 1) * logs.var(ddof=1)) / dof
+    return {"log_mean": float(logs.mean()), "log_scale": float(np.sqrt(pooled * (1.0 + 1.0 / n))),
+            "dof": int(dof), "minima": int(n)}
+
+
+def shrink_to_prior(values, prior: dict | None, log_sd: float | None = None) -> tuple[np.ndarray, dict]:
+    """Combine a projected proxy ensemble with the record's prior (Bayes' rule by weighting the members).
+
+    The members stand for the likelihood of ln |proxy| (the projection's spread under a flat
+    prior). With ``log_sd`` (the error the projection is expected to make at this lead, from
+    the record's earlier minima) they are first brought to that log spread about their log
+    mean, wider or narrower. Each is then weighted by the prior's density (:func:`record_prior`, a Student
+    t: far from the record's minima it flattens, so a cycle unlike the earlier ones is pulled
+    back little), and every member moves to the weighted distribution's quantile at its own
+    rank, which keeps their order (and so what drives them). Without a prior they are only
+    brought to ``log_sd``; with neither they come back unchanged.
+
+    Returns
+    -------
+    (ndarray, dict)
+        The members' new magnitudes, and what the combination did: the medians before and after,
+        the log spread used, the prior's median and the weights' effective number of members.
+    """
+    v = np.abs(np.asarray(values, dtype=np.float64))
+    info = {"median_before": float(np.median(v)) if v.size else None, "median_after": None,
+            "projection_log_sd": None, "prior_median": None, "effective_members": None}
+    if v.size < 2 or not np.all(v > 0) or (prior is None and log_sd is None):
+        info["median_after"] = info["median_before"]
+        return v, info
+    logs = np.log(v)
+    m, spread = float(logs.mean()), float(logs.std(ddof=1))
+    s = spread if log_sd is None else float(log_sd)
+    stretched = m + (logs - m) * (s / spread) if spread > 0 else logs
+    info["projection_log_sd"] = s
+    if prior is None:
+        out = np.exp(stretched)
+        info["median_after"] = float(np.median(out))
+        return out, info
+    nu = prior["dof"]
+    z = (stretched - prior["log_mean"]) / prior["log_scale"]
+    weights = (1.0 + z**2 / nu) ** (-0.5 * (nu + 1.0))
+    order = np.argsort(stretched, kind="stable")
+    w = weights[order] / weights.sum()
+    centres = np.cumsum(w) - 0.5 * w  # the weighted distribution's quantile at each sorted member
+    ranks = (np.arange(v.size) + 0.5) / v.size
+    out = np.empty_like(v)
+    out[order] = np.exp(np.interp(ranks, centres, stretched[order]))
+    info.update(median_after=float(np.median(out)), prior_median=float(np.exp(prior["log_mean"])),
+                effective_members=float(weights.sum() ** 2 / np.sum(weights**2)))
+    return out, info
 
 
 def _ensemble_draws(members: int, seed: int):
