@@ -99,10 +99,7 @@ def calibration_from_events(events: dict, proxy: str = "axial_dipole") -> list[d
         nxt = [m["time"] for m in events.get("minima", []) if m["time"] > at["time"] + 1.0]
         if not later or (nxt and later[0]["time"] > nxt[0]):
             continue
-        if proxy == "mean_field":
-            value = 0.5 * (abs(at["north"]) + abs(at["south"]))
-        else:
-            value = abs(at[proxy])
+        value = _proxy_at(at, proxy)
         if np.isfinite(value):
             pairs.append({"cycle": k + 1, "minimum": at["time"], "proxy": float(value),
                           "next_amplitude": float(later[0]["sunspot_number"]), "source": "record"})
@@ -254,11 +251,11 @@ def _date_log_spread(values, minimum_times) -> float:
     return float(abs(slope) * np.std(t[keep], ddof=1))
 
 
-def _proxies_at_minima(events: dict, proxy: str) -> list[float]:
-    """The proxy's magnitude measured at each minimum of the record so far."""
+def _proxy_at(at: dict, proxy: str) -> float:
+    """The proxy's magnitude in one entry of ``record_events``' ``at_minima``."""
     if proxy == "mean_field":
-        return [0.5 * (abs(a["north"]) + abs(a["south"])) for a in events.get("at_minima", [])]
-    return [abs(a[proxy]) for a in events.get("at_minima", [])]
+        return 0.5 * (abs(at["north"]) + abs(at["south"]))
+    return abs(at[proxy])
 
 
 def _fill_relative_error(merged) -> float:
@@ -423,8 +420,8 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                 projection[proxy] = np.abs(projection[proxy]) * np.exp(misfit)
         # then what the record's minima so far say of the proxy (its prior) weighs the members: far from
         # the minimum, where the projection knows little, the forecast leans on the record
-        projection[proxy], shrink = shrink_to_prior(projection[proxy], record_prior(_proxies_at_minima(events, proxy)),
-                                                    log_sd=target)
+        prior = record_prior([_proxy_at(a, proxy) for a in events.get("at_minima", [])])
+        projection[proxy], shrink = shrink_to_prior(projection[proxy], prior, log_sd=target)
         shrink["lead_log_error"] = lead_error
         shrink["lead_years"] = lead
         drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
@@ -439,7 +436,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         if shrink["prior_median"] is not None and abs(shrink["median_after"] / shrink["median_before"] - 1.0) >= 0.005:
             projection_kind += (f"; {lead:.1f} years before the minimum (where the projection erred by "
                                 f"{100 * (lead_error or 0.0):.0f} % in log on earlier minima), the record's "
-                                f"{len(_proxies_at_minima(events, proxy))} minima ({proxy} median "
+                                f"{prior['minima']} minima ({proxy} median "
                                 f"{shrink['prior_median']:.2f}) move the projection's median from {shrink['median_before']:.2f} to "
                                 f"{shrink['median_after']:.2f}")
     else:  # no map to start from: keep the latest smoothed proxy, with its recent spread

@@ -104,9 +104,9 @@ def shrink_to_prior(values, prior: dict | None, log_sd: float | None = None) -> 
     The members stand for the likelihood of ln |proxy| (the projection's spread under a flat
     prior). With ``log_sd`` (the error the projection is expected to make at this lead, from
     the record's earlier minima) they are first brought to that log spread about their log
-    mean, wider or narrower. Each is then weighted by the prior's density (:func:`record_prior`, a Student
-    t: far from the record's minima it flattens, so a cycle unlike the earlier ones is pulled
-    back little), and every member moves to the weighted distribution's quantile at its own
+    mean, wider or narrower. Each is then weighted by the prior's density
+    (:func:`record_prior`, a Student t: far from the record's minima it flattens, so a cycle
+    unlike the earlier ones is pulled back little), and every member moves to the weighted distribution's quantile at its own
     rank, which keeps their order (and so what drives them). Without a prior they are only
     brought to ``log_sd``; with neither they come back unchanged.
 
