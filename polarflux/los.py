@@ -212,7 +212,7 @@ SHAPE_FROM_DEG = 60.0
 #: The shape taken where none can be fitted: the polar field's sin^8 fall-off (Svalgaard et al. 1978).
 SHAPE_PRIOR = 8
 _SHAPE_MIN_R2 = 0.5
-_SHAPE_MIN_ROWS = 4  # fewer rows pin no shape down (a 40-row map's cap has three)
+_SHAPE_MIN_ROWS = 3  # two rows pin no shape down (B_p and n fit any two); a 40-row map's cap has three
 _GAUSS = np.polynomial.legendre.leggauss(16)
 
 
@@ -239,7 +239,7 @@ def cap_shape_exponent(row_means: np.ndarray, a: np.ndarray, b: np.ndarray) -> i
 
     Rows are weighted by their area; where the best fit explains less than half of the
     rows' variance about zero (a cap of mixed sign, near a reversal) or fewer than
-    four rows are seen, :data:`SHAPE_PRIOR` (sin^8).
+    three rows are seen, :data:`SHAPE_PRIOR` (sin^8).
     """
     good = np.isfinite(row_means)
     if good.sum() < _SHAPE_MIN_ROWS:

@@ -215,6 +215,30 @@ def test_a_steep_cap_on_a_coarse_grid_comes_back(tmp_path, n, b0):
     assert abs(np.sum(plain[rows, 0] * w) / w.sum() / truth - 1) > 0.01  # what the shape removes
 
 
+@pytest.mark.parametrize("n,b0", [(24, 6.0), (24, 1.0), (8, 3.0)])
+def test_a_steep_cap_on_forty_rows_is_fitted_from_its_three_rows(tmp_path, n, b0):
+    # 40 sine-latitude rows: the cap's rows span 58.2-64.2, 64.2-71.8 and 71.8-90 degrees, three
+    # rows, all seen at these B0. Their area-weighted mean over the three rows against the closed
+    # form 10 (1 - s0^(n+1)) / ((n + 1)(1 - s0)), s0 = 0.85 the sine of the lowest row's edge (analytic
+    # projection, quadrature). The sin^8 prior instead of a fit read a sin^24 cap 4-9 % low.
+    m, los = _steep_cap_los(n, b0, nrows=40, ncols=36)
+    path = write_fits(tmp_path / "steep40.fits", los, cea_header(40, 36, B0COL0=b0))
+    got = pf.read_map(path, field="los")
+    rows = np.arange(37, 40)
+    s = np.sin(np.deg2rad(m.lat_edges))
+    assert s[37] == pytest.approx(0.85) and np.isfinite(los[rows, 0]).all()
+    truth = 10 * (1 - s[37] ** (n + 1)) / ((n + 1) * (1 - s[37]))
+    w = np.diff(s)[rows]
+    assert np.sum(got.br[rows, 0] * w) / w.sum() == pytest.approx(truth, rel=5e-3)
+    if n != 8:  # what the sin^8 prior would have given: several per cent low
+        from polarflux.los import row_shape_integrals
+
+        a, b = np.deg2rad(m.lat_edges[rows]), np.deg2rad(m.lat_edges[rows + 1])
+        i0, i1, i2 = row_shape_integrals(a, b, 8)
+        fixed = los[rows, 0] * i0 / (np.cos(np.deg2rad(b0)) * i1 + np.sin(np.deg2rad(b0)) * i2)
+        assert np.sum(fixed * w) / w.sum() / truth - 1 < -0.03
+
+
 def test_the_cap_shape_is_fitted_where_one_fits_and_the_sin8_prior_taken_where_none_does():
     from polarflux.los import SHAPE_PRIOR, cap_shape_exponent, row_shape_integrals
 
