@@ -89,6 +89,29 @@ def test_gaps_stay_gaps():
     assert np.isnan(pf.running_mean(x, 5)[20])
 
 
+@pytest.mark.parametrize("rate", [2.0, -2.0])
+def test_a_reversal_through_a_curved_polar_field_is_at_its_zero(rate):
+    # y = 5 (exp(k (t - t0)) - 1) G per Carrington rotation (27.2753 d, common practice): one zero, at
+    # t0 (closed form), and a field that curves through it. A 13-rotation running mean moves the zero
+    # by about k w^2 / 24 (0.08 yr here, w the window in years); the local quadratic refinement does not.
+    import xarray as xr
+
+    from polarflux.events import _crossings, find_reversals
+
+    t0 = 2031.37
+    years = t0 - 2.0 + np.arange(54) * 27.2753 / 365.25
+    y = 5.0 * (np.exp(rate * (years - t0)) - 1.0)
+    times = from_decimal_year(years, as_datetime=True)
+    record = xr.Dataset({"mean_field": (("time", "hemisphere"), np.stack([y, -y], axis=1))},
+                        coords={"time": times, "hemisphere": ["north", "south"]})
+    t, _ = to_decimal_year(times)
+    for hemisphere in ("north", "south"):
+        found = find_reversals(record, variable="mean_field")[hemisphere]
+        assert len(found) == 1 and found[0].time == pytest.approx(t0, abs=0.01)
+    plain = [c for c, _ in _crossings(t, pf.running_mean(y, 13, 9))]
+    assert len(plain) == 1 and abs(plain[0] - t0) > 0.05  # what the refinement removes
+
+
 def test_deming_regression_against_a_known_slope():
     rng = np.random.default_rng(0)
     truth = rng.uniform(-5, 5, 400)
