@@ -13,7 +13,8 @@ wall time with the number of cores.
                              [--law linear proportional] [--worlds DIR]
 
 ``--worlds DIR`` keeps the generated worlds in DIR (``DIR/<preset>-<grid>-<cycles>-cycles-world<seed>``) and reuses those
-already there, so that two versions of the forecast can be scored on the same worlds.
+already there, so that two versions of the forecast can be scored on the same worlds; a kept world
+whose ``record.nc`` was removed is measured again (to score a change of the measurement).
 """
 
 from __future__ import annotations
@@ -61,7 +62,8 @@ def make_world(args: tuple) -> tuple[str, float]:
     folder, preset, seed, cycles, grid = args
     start = time.perf_counter()
     settings = world_settings(preset, seed, cycles, grid)
-    write_scenario(folder, settings)
+    if not os.path.exists(os.path.join(folder, "truth.json")):  # a kept world without its record is measured again
+        write_scenario(folder, settings)
     field = "los" if getattr(settings, "observation", "radial") != "radial" else "radial"
     record = pf.measure_archive([os.path.join(folder, "maps")], field=field)
     pf.write_record(record, os.path.join(folder, "record.nc"))
