@@ -233,6 +233,20 @@ def test_after_a_minimum_the_rising_cycle_is_forecast_from_its_measured_minimum(
     assert result["forecast"]["maximum_time"]["median"] > as_of
 
 
+def test_a_minimum_dated_before_the_forecast_date_is_not_called_coming(hindcast_scenario):
+    # months after a minimum, before the 13-month smoothed series can confirm it, the projection
+    # dates the minimum behind the forecast date: the text names it with its date, not "coming"
+    from polarflux.timeseries import format_date
+
+    folder, truth, record, t, v = hindcast_scenario
+    as_of = 2051.0 + truth["cycles"][3]["minimum_years"] + 0.6
+    result = forecast_from_record(record, t, v, as_of=as_of, members=40, seed=3)
+    start = result["phase"]["cycle_start"]
+    assert result["phase"]["phase"] != "rising" and start < as_of
+    assert "coming" not in result["phase"]["text"]
+    assert f"after the minimum of about {format_date(start)}" in result["phase"]["text"]
+
+
 def test_anchor_is_the_last_years_line_at_the_map_time_with_its_standard_error():
     # reference: statsmodels OLS of the last 13 rotations on time, its prediction of the mean at the
     # map's time (summary_frame mean and mean_se)
