@@ -15,10 +15,15 @@ line-of-sight archives), so the record offers three ways to treat them
 ``"temporal"``
     From the record: each 1-degree latitude band of the cap, in each map where part
     of it is unseen, takes for that part the band's mean field in the same
-    instrument's maps where the band was well seen (coverage >= 0.9), interpolated
-    linearly in time (after Sun et al. 2011, who fill the unseen pole from its
+    instrument's maps where the band was well seen (coverage >= 0.9), carried through
+    time by a local line (tricube weights over +-0.75 yr, :data:`SMOOTH_YEARS`;
+    Cleveland 1979) through those values, or linearly interpolated where fewer than
+    three lie that near (after Sun et al. 2011, who fill the unseen pole from its
     best-observed months). A band never well seen takes the sin^8 profile scaled to
-    the nearest band that is.
+    the nearest band that is. The local line averages several well-seen maps where
+    interpolation took the noise of the two nearest: on the hard invented worlds
+    (seeds 7-10) the 90th percentile of the 13-rotation errors went from 6.3/5.7 %
+    to 5.5/4.6 % (north/south), 0.2 % more on their noise-free twins.
 
 Every fill gives each map a **fill uncertainty** (G, on the cap mean field), the
 sum over bands of the unseen area times that band's uncertainty, over the cap area
@@ -30,7 +35,9 @@ sum over bands of the unseen area times that band's uncertainty, over the cap ar
   the fill assumes is not known better than that);
 * temporal: half the change of the band between the well-seen maps before and after,
   plus the band's map-to-map noise (median absolute successive difference of its
-  well-seen values, times 1.4826 / sqrt 2).
+  well-seen values, times 1.4826 / sqrt 2) times the factor by which the local line
+  scales independent noise (sqrt of the sum of its squared weights; 1 where
+  interpolated).
 
 References
 ----------
@@ -39,6 +46,8 @@ the polar field where it is not seen, interpolated in time from its best-observe
 months.
 Svalgaard, L., Duvall, T. L., Jr., & Scherrer, P. H. 1978, Sol. Phys. 58, 225: the
 polar field falls off about as sin^8 of latitude.
+Cleveland, W. S. 1979, J. Am. Stat. Assoc. 74, 829 (from memory): locally weighted
+regression with the tricube weight.
 """
 
 from __future__ import annotations
@@ -62,6 +71,8 @@ _PROFILE_EXPONENT = 8
 _EXPONENT_RANGE = (4, 12)
 _MAD_TO_SIGMA = 1.4826
 _RATE_SPAN = 0.5  # years
+#: Half-width (years) of the local linear fit through a band's well-seen values that fills it between them.
+SMOOTH_YEARS = 0.75
 
 
 def band_edges(cap_deg: float) -> np.ndarray:
@@ -163,6 +174,25 @@ def _robust_noise(values: np.ndarray) -> float:
     return float(_MAD_TO_SIGMA * np.median(np.abs(np.diff(values))) / np.sqrt(2.0))
 
 
+def _local_line(at: np.ndarray, tg: np.ndarray, vg: np.ndarray, half_width: float):
+    """Local linear fit (tricube weights over +-half_width years; Cleveland 1979) of (tg, vg) at times ``at``.
+
+    Returns the fitted values (NaN where fewer than 3 points carry weight or the fit is
+    degenerate) and, for each, sqrt(sum l_i^2) with l_i the weights of the linear
+    combination the fit is: the factor by which it scales independent noise.
+    """
+    d = tg[None, :] - at[:, None]
+    w = np.clip(1.0 - (np.abs(d) / half_width) ** 3, 0.0, None) ** 3
+    s0, s1, s2 = w.sum(axis=1), (w * d).sum(axis=1), (w * d * d).sum(axis=1)
+    det = s0 * s2 - s1 * s1
+    ok = ((w > 0).sum(axis=1) >= 3) & (det > 1e-9 * np.maximum(s0 * s2, 1e-300))
+    det = np.where(ok, det, 1.0)
+    weights = w * (s2[:, None] - s1[:, None] * d) / det[:, None]  # the fit's value at d = 0 is weights @ vg
+    fitted = np.where(ok, weights @ vg, np.nan)
+    factor = np.where(ok, np.sqrt((weights**2).sum(axis=1)), np.nan)
+    return fitted, factor
+
+
 def _interpolate_well_seen(times, values, coverage, order, b):
     """Band ``b``'s value at every map time from the maps where it was well seen, and the error."""
     good = order[(coverage[order, b] >= WELL_SEEN) & np.isfinite(values[order, b])]
@@ -170,9 +200,16 @@ def _interpolate_well_seen(times, values, coverage, order, b):
         return None, None
     tg, vg = times[good], values[good, b]
     filled = np.interp(times, tg, vg)
+    noise_factor = np.ones(times.size)
+    inside = (times >= tg[0]) & (times <= tg[-1])
+    if tg.size >= 3 and inside.any():
+        smoothed, factor = _local_line(times[inside], tg, vg, SMOOTH_YEARS)
+        ok = np.isfinite(smoothed)
+        filled[np.flatnonzero(inside)[ok]] = smoothed[ok]
+        noise_factor[np.flatnonzero(inside)[ok]] = factor[ok]
     after = np.clip(np.searchsorted(tg, times), 0, tg.size - 1)
     before = np.clip(after - 1, 0, tg.size - 1)
-    error = 0.5 * np.abs(vg[after] - vg[before]) + _robust_noise(vg)
+    error = 0.5 * np.abs(vg[after] - vg[before]) + _robust_noise(vg) * noise_factor
     # before the first and after the last well-seen map the value is held: its error grows with the
     # distance at the band's rate of change over the nearest half year or more of well-seen maps
     for end, outside in ((0, times < tg[0]), (-1, times > tg[-1])):

@@ -143,3 +143,36 @@ def test_a_record_cut_at_a_date_is_filled_from_the_maps_before_it(hidden_pole_ar
     np.testing.assert_allclose(cut["fill_error"].values, alone["fill_error"].values, rtol=1e-12, atol=1e-12)
     # and the full record's last cut maps differ: they were filled with later maps
     assert not np.allclose(full["mean_field"].values[:18], alone["mean_field"].values)
+
+
+def test_the_local_line_between_well_seen_maps_is_a_weighted_least_squares_line():
+    # reference: numpy.polyfit of degree 1 with weights sqrt(tricube) (weighted least squares,
+    # Cleveland 1979 for the tricube kernel), evaluated at each target time
+    from polarflux.fill import _local_line
+
+    rng = np.random.default_rng(2)
+    tg = np.sort(rng.uniform(0.0, 4.0, 40))
+    vg = 3.0 - 1.2 * tg + rng.normal(0.0, 0.3, tg.size)
+    at = np.array([0.5, 1.7, 2.2, 3.4])
+    fitted, factor = _local_line(at, tg, vg, 0.75)
+    for k, x in enumerate(at):
+        w = np.clip(1 - (np.abs(tg - x) / 0.75) ** 3, 0, None) ** 3
+        keep = w > 0
+        line = np.polyfit(tg[keep] - x, vg[keep], 1, w=np.sqrt(w[keep]))
+        assert fitted[k] == pytest.approx(line[1], rel=1e-9)
+        assert 0 < factor[k] < 1  # several maps: less noise than one
+
+
+def test_the_fill_noise_factor_matches_the_spread_of_the_fit():
+    # the factor sqrt(sum l_i^2) times the noise is the standard deviation of the fitted value over
+    # draws of independent noise (a linear combination of the values; common practice)
+    from polarflux.fill import _local_line
+
+    rng = np.random.default_rng(3)
+    tg = np.sort(rng.uniform(0.0, 4.0, 30))
+    at = np.array([1.0, 2.5])
+    draws = np.array([_local_line(at, tg, 5.0 + 0.5 * tg + rng.normal(0, 0.4, tg.size), 0.75)[0]
+                      for _ in range(4000)])
+    _, factor = _local_line(at, tg, np.zeros(tg.size), 0.75)
+    np.testing.assert_allclose(draws.std(axis=0), 0.4 * factor, rtol=0.05)
+    np.testing.assert_allclose(draws.mean(axis=0), 5.0 + 0.5 * at, atol=0.02)  # a line comes back exactly
