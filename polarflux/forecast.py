@@ -466,7 +466,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         start = float(result["minimum_time"]["median"])
         # a minimum the projection dates before the forecast date is past, only not yet confirmed by the series
         which = ("the coming minimum" if start > as_of_year else
-                 f"the minimum of about {format_date(start)} (not yet confirmed by the sunspot series)")
+                 f"the minimum of about {format_date(start)}, not yet confirmed by the sunspot series")
         phase = {"phase": "declining" if peak is not None else "minimum",
                  "cycle_start": start,
                  "text": f"the next cycle, after {which} (the cycle that began at {format_date(minima[-1])} "
