@@ -184,11 +184,13 @@ def _calibration_html(events: dict) -> str:
     if not factors:
         return "<p>One instrument: no cross-calibration needed.</p>"
     out = _table(
-        ["instrument", "onto", "quantity", "factor", "1σ", "95 % range", "rotations"],
+        ["instrument", "onto", "quantity", "factor", "1σ", "95 % range", "rotations", "noise variance ratio"],
         [[f["instrument"], f["reference"], f["quantity"], f"{f['factor']:.4f}", f"{f['uncertainty']:.4f}",
-          f"{f['low95']:.4f}–{f['high95']:.4f}", f["pairs"]] for f in factors],
+          f"{f['low95']:.4f}–{f['high95']:.4f}", f["pairs"], f"{f.get('error_ratio', 1.0):.3g}"] for f in factors],
     )
-    return out + ("<p>Separate cap factors needed: " + ("yes" if events["band_factors_needed"] else
+    return out + ("<p>Noise variance ratio: the reference's noise variance over the instrument's, each from "
+                  "the second differences of its own record, which the Deming fit weighs the two by.</p>"
+                  "<p>Separate cap factors needed: " + ("yes" if events["band_factors_needed"] else
                   "no (one polar factor fits both caps and the dipole)") + ".</p>")
 
 

@@ -51,7 +51,8 @@ def events_table(found: dict) -> str:
     lines = []
     for f in found["scale_factors"]:
         lines.append(f"scale {f['instrument']} -> {f['reference']} ({f['quantity']}): {f['factor']:.4f} "
-                     f"+/- {f['uncertainty']:.4f} (95 %: {f['low95']:.4f}-{f['high95']:.4f}, {f['pairs']} rotations)")
+                     f"+/- {f['uncertainty']:.4f} (95 %: {f['low95']:.4f}-{f['high95']:.4f}, {f['pairs']} rotations; "
+                     f"noise variance of {f['reference']} / {f['instrument']}: {f.get('error_ratio', 1.0):.3g})")
     if found["scale_factors"]:
         lines.append("separate cap factors needed: " + ("yes" if found["band_factors_needed"] else
                                                         "no (one polar factor fits both caps and the dipole)"))
