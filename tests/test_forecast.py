@@ -136,7 +136,8 @@ def test_hindcast_medians_two_years_ahead_within_their_stated_error(hindcast_sce
     # record's prior weighs it: cycle 5's dipole is 27 % above the three before it, and the prior pulls
     # its projected dipole down by 3 % (the forecast's median from 146 to 143, 52 below the truth
     # against 50 allowed; cycle 6's went from 91 to 100 against 133). What the prior may do is
-    # bounded separately: a projection well above the record's minima moves by less than 5 %.
+    # bounded separately: it moves the projection towards the record's minima, and (the projection's
+    # spread being about 0.1 in log, the record's about 0.2) by less than half the way there.
     folder, truth, record, t, v = hindcast_scenario
     scatter = truth["precursor_relation"]["log_scatter"]
     for target in [c for c in truth["cycles"][3:]] + [truth["next_cycle"]]:
@@ -146,7 +147,9 @@ def test_hindcast_medians_two_years_ahead_within_their_stated_error(hindcast_sce
         error = projected - target["amplitude"]
         allowed = 2.5 * np.hypot(result["calibration"]["loo_rms"], scatter * target["amplitude"])
         assert abs(error) <= allowed, (target["cycle"], error, allowed)
-        assert abs(weighed["median_after"] / weighed["median_before"] - 1.0) < 0.05, (target["cycle"], weighed)
+        moved = np.log(weighed["median_after"] / weighed["median_before"])
+        towards = np.log(weighed["prior_median"] / weighed["median_before"])
+        assert moved * towards >= 0 and abs(moved) < 0.5 * abs(towards), (target["cycle"], weighed)
 
 
 def test_dipole_and_mean_field_forecasts_agree(hindcast_scenario):
