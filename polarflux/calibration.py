@@ -126,12 +126,8 @@ def noise_sd(values: np.ndarray, rotations: np.ndarray) -> float:
     return float(_MAD_TO_SIGMA * np.median(np.abs(second - np.median(second))) / np.sqrt(6.0))
 
 
-def _error_ratio(columns: list[np.ndarray], rotations: np.ndarray, names: np.ndarray, instrument: str,
-                 reference: str) -> float:
-    """var(reference noise) / var(instrument noise) for the Deming fit, the variances summed over ``columns``
-    (one quantity, or both caps); 1 where either cannot be estimated."""
-    var_ref = sum(noise_sd(c[names == reference], rotations[names == reference]) ** 2 for c in columns)
-    var_inst = sum(noise_sd(c[names == instrument], rotations[names == instrument]) ** 2 for c in columns)
+def _error_ratio(var_ref: float, var_inst: float) -> float:
+    """var(reference noise) / var(instrument noise) for the Deming fit; 1 where either is unknown."""
     if not (np.isfinite(var_ref) and np.isfinite(var_inst) and var_ref > 0 and var_inst > 0):
         return 1.0
     return float(np.clip(var_ref / var_inst, *_ERROR_RATIO_RANGE))
@@ -174,9 +170,12 @@ def cross_calibrate(record, reference: str | None = None) -> list[ScaleFactor]:
             "polar": (mean[a].ravel(), mean[b].ravel()),
             "axial_dipole": (dipole[a], dipole[b]),
         }
-        columns = {"north": [mean[:, 0]], "south": [mean[:, 1]], "polar": [mean[:, 0], mean[:, 1]],
-                   "axial_dipole": [dipole]}
-        ratios = {q: _error_ratio(c, rotations, names_array, inst, reference) for q, c in columns.items()}
+        # each instrument's noise variance per quantity, from its own record; both caps: the two summed
+        variances = {q: tuple(noise_sd(column[names_array == n], rotations[names_array == n]) ** 2
+                              for n in (reference, inst))
+                     for q, column in (("north", mean[:, 0]), ("south", mean[:, 1]), ("axial_dipole", dipole))}
+        variances["polar"] = tuple(np.add(variances["north"], variances["south"]))
+        ratios = {q: _error_ratio(*v) for q, v in variances.items()}
         for quantity in _QUANTITIES:
             x, y = data[quantity]
             good = np.isfinite(x) & np.isfinite(y)

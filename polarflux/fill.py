@@ -205,8 +205,8 @@ def _interpolate_well_seen(times, values, coverage, order, b):
     if tg.size >= 3 and inside.any():
         smoothed, factor = _local_line(times[inside], tg, vg, SMOOTH_YEARS)
         ok = np.isfinite(smoothed)
-        filled[np.flatnonzero(inside)[ok]] = smoothed[ok]
-        noise_factor[np.flatnonzero(inside)[ok]] = factor[ok]
+        where = np.flatnonzero(inside)[ok]
+        filled[where], noise_factor[where] = smoothed[ok], factor[ok]
     after = np.clip(np.searchsorted(tg, times), 0, tg.size - 1)
     before = np.clip(after - 1, 0, tg.size - 1)
     error = 0.5 * np.abs(vg[after] - vg[before]) + _robust_noise(vg) * noise_factor
