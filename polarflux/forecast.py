@@ -294,7 +294,7 @@ def public_result(result: dict) -> dict:
 
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
                          calibration: list[dict] | None = None, as_of=None, members: int = 1000, seed: int = 0,
-                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW) -> dict:
+                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW, hemispheric=None) -> dict:
     """The whole forecast from a measured record and a sunspot series.
 
     Parameters
@@ -316,12 +316,16 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         Folders against which relative map paths of the record are tried.
     law : {"linear", "proportional"}
         The precursor law (:mod:`polarflux.precursor`).
+    hemispheric : (array-like, array-like), optional
+        Northern and southern sunspot numbers on ``sunspot_times``: each cap is then also
+        calibrated on, and forecast for, its own hemisphere (:mod:`polarflux.hemispheres`).
 
     Returns
     -------
     dict
         ``calibration`` (pairs, coefficients, standard errors, hindcast errors), ``projection``,
-        ``forecast`` (amplitude and time of maximum, median and 68/95 % ranges) and ``caution``.
+        ``forecast`` (amplitude and time of maximum, median and 68/95 % ranges), ``hemispheres``
+        (None without hemispheric sunspot numbers) and ``caution``.
     """
     from .calibration import merge_instruments
     from .cutoff import cut_record, cut_sunspots, data_end
@@ -341,6 +345,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     # only what existed on the date: a map once its rotation has ended, a sunspot value once its
     # month (or year) has; a temporal fill made again from the maps kept
     past = cut_record(record, as_of_year)
+    hemi_ssn = None if hemispheric is None else [cut_sunspots(t_ssn, h, as_of_year)[1] for h in hemispheric]
     t_ssn, v_ssn = cut_sunspots(t_ssn, v_ssn, as_of_year)
     if past.sizes["time"] < 13:
         times = np.sort(record["time"].values.astype("datetime64[ns]"))
@@ -391,6 +396,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
         if model_now[proxy] > 0 and measured[proxy] > 0:
             projection[proxy] = np.abs(projection[proxy]) * (measured[proxy] / model_now[proxy])
+        anchored = np.abs(projection[proxy]).copy()  # what the draws, the misfit and the prior change below
         # the anchor is only as good as the fill of the caps' unseen part and the smoothing of the last
         # year's values: each member's scale is drawn from both
         fill_relative = _fill_relative_error(merged)
@@ -424,6 +430,11 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         projection[proxy], shrink = shrink_to_prior(projection[proxy], prior, log_sd=target)
         shrink["lead_log_error"] = lead_error
         shrink["lead_years"] = lead
+        # each cap anchored to its own smoothed field, then changed member by member as the proxy was
+        changed = np.divide(projection[proxy], anchored, out=np.ones(members), where=anchored > 0)
+        for h in ("north", "south"):
+            model_h = abs(start[f"{h}_mean_field"])
+            projection[h] = projection[h] * (measured[h] / model_h if model_h > 0 else 1.0) * changed
         drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
                        [projection["diffusivity"], projection["flow_speed"], 1.0 / projection["decay_time"]]),
                    "date of minimum": projection["minimum"],
@@ -456,6 +467,18 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         fitted = DecliningCycle.fit(t_ssn, v_ssn, minima[-1], as_of_year)
         declining = {"start": fitted.start, "shape_a": fitted.shape_a, "scale": fitted.scale}
     budget = spread_budget(fit, result["samples"]["amplitude"], projection[proxy], drivers)
+    hemispheres = None
+    if hemi_ssn is not None:
+        from .hemispheres import hemispheric_forecast, hemispheric_pairs
+
+        if calibration is not None:
+            hemispheres = {"pairs": [], "why": "a calibration file was given: the hemispheric pairs come only "
+                                               "from the record's own cycles"}
+        elif "north" not in projection:
+            hemispheres = {"pairs": [], "why": "no map to project the caps from"}
+        else:
+            hemispheres = hemispheric_forecast(hemispheric_pairs(pairs, events, t_ssn, *hemi_ssn),
+                                               projection, law, seed + 5)
     if rising is not None:
         phase = {"phase": "rising", "cycle_start": minima[-1],
                  "text": f"the cycle that began at the minimum of {format_date(minima[-1])} (rising, its maximum "
@@ -498,6 +521,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
                           for name in ("north", "south", "axial_dipole") if name in projection}},
         "forecast": {"amplitude": result["amplitude"], "maximum_time": result["maximum_time"],
                      "spread_budget": budget},
+        "hemispheres": hemispheres,
         "samples": result["samples"],
         "fit": fit,
         "caution": CAUTION,

@@ -255,8 +255,8 @@ def _latest_profile(record, merged, as_of_ns, bases=("",)):
 def _anchor(merged, when) -> dict:
     """The proxies the projection is anchored to, as the calibration sees them, and their errors.
 
-    The merged record's viewing-corrected polar mean field (mean of north and minus south) and
-    axial dipole, each on the reference scale with its own factor (as the merge applied them),
+    The merged record's viewing-corrected polar mean field (mean of north and minus south), each
+    cap's (``north``, ``south``, magnitudes) and the axial dipole, each on the reference scale with its own factor (as the merge applied them),
     smoothed as a straight line fitted to the last 13 rotations up to ``when`` and taken at
     ``when`` (a centred 13-rotation mean, as at the calibration's minima, needs half a year of
     later data). The errors are the line's standard error there.
@@ -266,7 +266,8 @@ def _anchor(merged, when) -> dict:
     t, _ = to_decimal_year(merged["time"].values)
     now = float(to_decimal_year(np.array([when], dtype="datetime64[ns]"))[0][0])
     corrected = merged["mean_field_corrected"].values
-    series = {"mean_field": 0.5 * (corrected[:, 0] - corrected[:, 1]), "axial_dipole": merged["axial_dipole"].values}
+    series = {"mean_field": 0.5 * (corrected[:, 0] - corrected[:, 1]), "axial_dipole": merged["axial_dipole"].values,
+              "north": corrected[:, 0], "south": corrected[:, 1]}
     out, errors = {}, {}
     for name, y in series.items():
         good = np.flatnonzero(np.isfinite(y) & (t <= now + 1e-9))[-13:]

@@ -31,11 +31,30 @@ def forecast_text(result: dict) -> str:
         *([("spread of the amplitude (share of its variance): "
             + ", ".join(f"{k} {100 * v:.0f} %" for k, v in sorted(fc["spread_budget"].items(), key=lambda kv: -kv[1])))]
           if fc.get("spread_budget") else []),
+        *_hemispheres_text(result.get("hemispheres")),
         "caution: " + result["caution"],
     ]
     if cal.get("warning"):
         lines.insert(2, "WARNING: " + cal["warning"])
     return "\n".join(lines)
+
+
+def _hemispheres_text(hemispheres: dict | None) -> list[str]:
+    """The hemispheric forecast's lines (none without hemispheric sunspot numbers)."""
+    if not hemispheres:
+        return []
+    if hemispheres.get("why"):
+        return [f"hemispheres: not forecast ({hemispheres['why']})"]
+    parts = []
+    for h in ("north", "south"):
+        a = hemispheres[h]["amplitude"]
+        parts.append(f"{h} {a['median']:.0f} (68 %: {a['low68']:.0f}-{a['high68']:.0f}; "
+                     f"95 %: {a['low95']:.0f}-{a['high95']:.0f})")
+    lines = [f"hemispheres (each cap against its own hemisphere's maximum, {len(hemispheres['pairs'])} pairs: "
+             f"{_law_text(hemispheres)}; leave-one-out rms {hemispheres['loo_rms']:.1f}): " + "; ".join(parts)]
+    if hemispheres.get("warning"):
+        lines.append("WARNING (hemispheres): " + hemispheres["warning"])
+    return lines
 
 
 def _law_text(cal: dict) -> str:

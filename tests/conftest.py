@@ -90,6 +90,18 @@ def three_cycles(tmp_path_factory):
     return folder, truth
 
 
+@pytest.fixture(scope="session")
+def hindcast_scenario(tmp_path_factory):
+    """Five cycles of the invented scenario at low resolution, measured: folder, truth, record, sunspots."""
+    from polarflux.synthetic import settings_for, write_scenario
+
+    folder = tmp_path_factory.mktemp("hindcast")
+    truth = write_scenario(folder, settings_for("low", cycles=5, seed=31))
+    record = pf.measure_archive([folder / "maps"])
+    t, v = pf.read_sunspots(folder / "sunspots.csv")
+    return folder, truth, record, t, v
+
+
 @pytest.fixture(autouse=True)
 def _private_cache(tmp_path_factory, monkeypatch):
     """Every test gets its own cache folder, so the default measurement ledger is never shared."""

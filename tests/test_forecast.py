@@ -95,17 +95,6 @@ def test_rise_time_shortens_for_stronger_cycles():
     assert 3.0 < strong < weak < 6.0
 
 
-@pytest.fixture(scope="module")
-def hindcast_scenario(tmp_path_factory):
-    from polarflux.synthetic import settings_for, write_scenario
-
-    folder = tmp_path_factory.mktemp("hindcast")
-    truth = write_scenario(folder, settings_for("low", cycles=5, seed=31))
-    record = pf.measure_archive([folder / "maps"])
-    t, v = pf.read_sunspots(folder / "sunspots.csv")
-    return folder, truth, record, t, v
-
-
 def test_hindcasts_two_years_before_minimum_cover_the_truth(hindcast_scenario):
     folder, truth, record, t, v = hindcast_scenario
     start = 2051.0

@@ -74,9 +74,9 @@ def events(args, parser) -> int:
 
 
 def forecast(args, parser) -> int:
-    from ..events import read_sunspots
     from ..forecast import forecast_from_record, read_calibration
     from ..record import read_record
+    from ..sunspots import read_sunspot_series
     from ..tables import forecast_text
 
     if args.members < 10:
@@ -84,7 +84,9 @@ def forecast(args, parser) -> int:
     as_of = parse_date(args.as_of, "--as-of", parser)
     record_path = Path(args.record)
     record = read_record(record_path)
-    t, v = read_sunspots(args.sunspots)
+    series = read_sunspot_series(args.sunspots)
+    t, v = series.times, series.total
+    hemispheric = (series.north, series.south) if series.north is not None and series.south is not None else None
     if as_of is not None:
         import numpy as np
 
@@ -100,7 +102,8 @@ def forecast(args, parser) -> int:
     outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
                           args.force)
     result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of, law=args.law,
-                                  members=args.members, seed=args.seed, bases=bases(record_path))
+                                  members=args.members, seed=args.seed, bases=bases(record_path),
+                                  hemispheric=hemispheric)
     print(forecast_text(result))
     write_forecast(result, t, v, outputs, args.force, caption=f"polarflux forecast: {record_path}")
     print("outputs: " + ", ".join(str(p) for p in outputs.values()))
