@@ -64,12 +64,16 @@ def _write_series(path: Path, series) -> None:
         writer.writerows(series)
 
 
-def _write_regions(path: Path, regions: list[BipolarRegion], cycle_of: dict) -> None:
+def _write_regions(path: Path, regions: list[BipolarRegion], cycle_of: dict, start: str) -> None:
+    """Every region: its date (and years from the start), place, leading flux (signed), size, tilt and cycle."""
+    years = np.array([r.time for r in regions], dtype=np.float64)
+    with quiet_time_warnings():
+        dates = (Time(start, scale="utc") + years * 365.25 * u.day).utc.isot if years.size else []
     with atomic_path(path, force=True) as tmp, open(tmp, "w", newline="", encoding="utf-8") as handle:
         writer = csv.writer(handle)
-        writer.writerow(["years", "latitude", "longitude", "flux_mx", "separation_deg", "tilt_deg", "cycle"])
-        for r in regions:
-            writer.writerow([f"{r.time:.5f}", f"{r.latitude:.3f}", f"{r.longitude:.3f}", f"{r.flux:.4e}",
+        writer.writerow(["date", "years", "latitude", "longitude", "flux_mx", "separation_deg", "tilt_deg", "cycle"])
+        for date, r in zip(dates, regions, strict=True):
+            writer.writerow([date[:10], f"{r.time:.5f}", f"{r.latitude:.3f}", f"{r.longitude:.3f}", f"{r.flux:.4e}",
                              f"{r.separation:.3f}", f"{r.tilt:.3f}", cycle_of[id(r)]])
 
 

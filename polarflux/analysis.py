@@ -14,8 +14,12 @@ from .events import record_events
 __all__ = ["analyse"]
 
 
-def analyse(record, sunspots=None, bases=("",), members: int = 1000, seed: int = 0, as_of=None) -> dict:
+def analyse(record, sunspots=None, bases=("",), members: int = 1000, seed: int = 0, as_of=None,
+            hemispheric=None) -> dict:
     """Merge the instruments, find the events and (with ``sunspots`` = (times, values)) forecast.
+
+    ``hemispheric`` (northern and southern sunspot numbers on the same times) adds each
+    hemisphere's forecast (:mod:`polarflux.hemispheres`).
 
     Returns a dict: ``record``, ``merged`` (None when the instruments cannot be brought
     onto one scale), ``merge_error`` (why not, or None), ``events`` (None without a
@@ -40,7 +44,7 @@ def analyse(record, sunspots=None, bases=("",), members: int = 1000, seed: int =
 
         try:
             result["forecast"] = forecast_from_record(record, *sunspots, members=members, seed=seed, as_of=as_of,
-                                                      bases=bases)
+                                                      bases=bases, hemispheric=hemispheric)
         except PolarfluxError as exc:
             result["forecast_error"] = str(exc)
     return result

@@ -294,7 +294,7 @@ def public_result(result: dict) -> dict:
 
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
                          calibration: list[dict] | None = None, as_of=None, members: int = 1000, seed: int = 0,
-                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW, hemispheric=None) -> dict:
+                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW, hemispheric=None, regions=None) -> dict:
     """The whole forecast from a measured record and a sunspot series.
 
     Parameters
@@ -319,6 +319,10 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     hemispheric : (array-like, array-like), optional
         Northern and southern sunspot numbers on ``sunspot_times``: each cap is then also
         calibrated on, and forecast for, its own hemisphere (:mod:`polarflux.hemispheres`).
+    regions : polarflux.regions.Regions, optional
+        Active regions with latitudes and leading polarities: a minimum the new cycle's regions
+        confirm (:func:`polarflux.regions.minimum_from_regions`) before the sunspot series can is
+        taken as the coming minimum's date. Only regions emerged by the forecast date enter.
 
     Returns
     -------
@@ -364,6 +368,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     fill_relative = 0.0
     late_fit = None
     shrink = None
+    by_regions = None
     peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
     rising = _rising_cycle(events, minima[-1], as_of_year, proxy, peak)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
@@ -386,11 +391,19 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # the coming minimum is not confirmed yet: it is after the forecast date less the time the
         # series needs to confirm one (half the 13-month smoothing window, then CONFIRM_YEARS of rise)
         earliest = max(minima[-1] + 1.0, as_of_year - (0.5 + CONFIRM_YEARS))
+        cycle_length = (11.0, 0.8)
+        if regions is not None:
+            from .regions import WINDOW_YEARS, minimum_from_regions
+
+            by_regions = minimum_from_regions(regions, minima, as_of_year)
+            if by_regions is not None:  # the new cycle's regions confirm a minimum the series cannot yet
+                cycle_length = (by_regions.time - minima[-1], by_regions.uncertainty_years)
+                earliest = minima[-1] + 1.0
         cap = float(record.attrs.get("cap_deg", 60.0))
         late_fit, late = _late_emergence(past, merged, events, t_ssn, v_ssn, bases, minima[-1], as_of_year, now,
                                          members, seed, cap)
         projection = project_to_minimum(profile, edges, now, minima[-1], members=members, seed=seed,
-                                        cap_latitude=cap, earliest=earliest, late=late)
+                                        cap_latitude=cap, earliest=earliest, late=late, cycle_length=cycle_length)
         start = projection["now"]
         model_now = {"axial_dipole": abs(start["axial_dipole"]),
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
@@ -490,8 +503,19 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # a minimum the projection dates before the forecast date is past, only not yet confirmed by the series
         which = ("the coming minimum" if start > as_of_year else
                  f"the minimum of about {format_date(start)}, not yet confirmed by the sunspot series")
+        if regions is not None and by_regions is None:
+            which += "; the new cycle's regions do not yet outnumber the old's"
+        if by_regions is not None:
+            which = (f"the minimum of about {format_date(by_regions.time)} (+/- {by_regions.uncertainty_years:.1f} yr), "
+                     f"confirmed by {by_regions.new_regions} new-cycle regions against {by_regions.old_regions} old "
+                     f"in the half-year to {format_date(by_regions.crossing + WINDOW_YEARS / 2.0)}, not yet by the sunspot series")
         phase = {"phase": "declining" if peak is not None else "minimum",
                  "cycle_start": start,
+                 "minimum_from_regions": None if by_regions is None else {
+                     "time": by_regions.time, "uncertainty_years": by_regions.uncertainty_years,
+                     "crossing": by_regions.crossing, "confirmed": by_regions.confirmed,
+                     "new_regions": by_regions.new_regions, "old_regions": by_regions.old_regions,
+                     "earlier_offsets_years": list(by_regions.offsets)},
                  "text": f"the next cycle, after {which} (the cycle that began at {format_date(minima[-1])} "
                          f"is {why})"}
     return {

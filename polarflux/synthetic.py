@@ -455,7 +455,7 @@ class _Run:
             self.stepper_until_recorded()
             self._write_finished(grid, numbers, mids, b0, observed)
             truth["maps"] = self.written
-        _write_regions(out / "regions.csv", self.regions[:self.next_region], cycle_of)
+        _write_regions(out / "regions.csv", self.regions[:self.next_region], cycle_of, s.start)
         _write_text(out / "truth.json", json.dumps(truth, indent=1), force=True)
         _write_series(out / "truth_series.csv", series)
         _write_sunspots(out / "sunspots.csv", cycles, s, total_years)

@@ -59,7 +59,7 @@ def test_hemispheric_fit_and_forecast_match_statsmodels(law):
     caps = rng.uniform(1.0, 4.0, 10)
     amplitude = 18.0 * caps * np.exp(rng.normal(0.0, 0.12, caps.size))
     pairs = [{"cycle": f"{k // 2 + 1}{'NS'[k % 2]}", "hemisphere": ("north", "south")[k % 2],
-              "proxy": float(c), "next_amplitude": float(a)} for k, (c, a) in enumerate(zip(caps, amplitude))]
+              "proxy": float(c), "next_amplitude": float(a)} for k, (c, a) in enumerate(zip(caps, amplitude, strict=True))]
     members = 40000
     projected = {"north": np.full(members, 2.0), "south": np.full(members, 3.0)}
     out = hemispheric_forecast(pairs, projected, law, seed=2)
@@ -138,6 +138,6 @@ def test_forecast_command_prints_and_saves_the_hemispheres(world, tmp_path, caps
     # a file without hemispheric columns: no hemispheric forecast, said by its absence
     total_only = tmp_path / "total.csv"
     total_only.write_text("year,sunspot_number\n" + "\n".join(
-        f"{y:.4f},{v:.1f}" for y, v in zip(series.times, series.total)) + "\n")
+        f"{y:.4f},{v:.1f}" for y, v in zip(series.times, series.total, strict=True)) + "\n")
     assert main(["forecast", str(path), "--sunspots", str(total_only), "--members", "60", "--force"]) == 0
     assert "hemispheres" not in capsys.readouterr().out

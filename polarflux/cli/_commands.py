@@ -76,6 +76,7 @@ def events(args, parser) -> int:
 def forecast(args, parser) -> int:
     from ..forecast import forecast_from_record, read_calibration
     from ..record import read_record
+    from ..regions import read_regions
     from ..sunspots import read_sunspot_series
     from ..tables import forecast_text
 
@@ -98,12 +99,13 @@ def forecast(args, parser) -> int:
             parser.error(f"--as-of {args.as_of}: after the end of the data ({format_date(end)}, when the latest map "
                          "and sunspot value exist); leave it out to forecast from the latest data")
     calibration = read_calibration(args.calibration) if args.calibration else None
+    regions = read_regions(args.regions) if args.regions else None
     prefix = Path(args.out) if args.out else record_path.with_name(record_path.stem + "_forecast")
     outputs = outputs_for(prefix, {"json": ".json", "fan": "_fan.png", "calibration": "_calibration.png"},
                           args.force)
     result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of, law=args.law,
                                   members=args.members, seed=args.seed, bases=bases(record_path),
-                                  hemispheric=hemispheric)
+                                  hemispheric=hemispheric, regions=regions)
     print(forecast_text(result))
     write_forecast(result, t, v, outputs, args.force, caption=f"polarflux forecast: {record_path}")
     print("outputs: " + ", ".join(str(p) for p in outputs.values()))

@@ -85,13 +85,16 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
 
     from .._io import atomic_path
     from ..analysis import analyse
-    from ..events import read_sunspots, to_decimal_year
+    from ..events import to_decimal_year
     from ..report import figures, save_figure, write_report
+    from ..sunspots import read_sunspot_series
 
     start = float(to_decimal_year(np.datetime64(truth["start"][:19]).reshape(1))[0][0])
     target = truth.get("next_cycle") or truth["cycles"][-1]
     as_of = start + target["start_years"] - 2.0  # forecast from the maps two years before the minimum
-    analysis = analyse(ds, read_sunspots(scenario / "sunspots.csv"), as_of=as_of)
+    series = read_sunspot_series(scenario / "sunspots.csv")
+    analysis = analyse(ds, (series.times, series.total), as_of=as_of, hemispheric=(series.north, series.south)
+                       if series.north is not None and series.south is not None else None)
     found = analysis["events"]
     print(events_table(found))
     scales = {i["name"]: i["scale"] for i in truth["instruments"]}

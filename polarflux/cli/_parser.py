@@ -91,6 +91,10 @@ def build_parser() -> argparse.ArgumentParser:
                           f"(amplitude = k x proxy with a log-normal scatter: one parameter) (default: {DEFAULT_LAW})")
     forecast.add_argument("--proxy", choices=("axial_dipole", "mean_field"), default="axial_dipole",
                           help="polar proxy at minimum (default: axial_dipole)")
+    forecast.add_argument("--regions", metavar="FILE.csv",
+                          help="active regions (columns date or year, latitude, and leading_polarity or flux_mx): "
+                          "a minimum the new cycle's regions confirm (high latitude, reversed leading polarity, "
+                          "outnumbering the old cycle's) is used before the sunspot series can confirm it")
     forecast.add_argument("--members", type=int, default=1000, metavar="N", help="ensemble members (default: 1000)")
     forecast.add_argument("--seed", type=int, default=0, help="random seed of the ensemble (default: 0)")
     forecast.add_argument("--as-of", metavar="DATE", help="forecast as on this date (YYYY-MM-DD): a hindcast")
