@@ -39,7 +39,7 @@ MIN_NEW = 5
 AGREE_MONTHS = 2
 #: The offset's spread assumed before the record's minima speak (years) and its weight (minima):
 #: on our invented worlds the crossing, shifted by the record's mean offset, missed the minimum by
-#: 0.38 yr rms (13 minima of five worlds, 1-3 earlier minima each).
+#: 0.36 yr rms (13 minima of five worlds, 1-3 earlier minima each).
 PRIOR_SD_YEARS = 0.4
 PRIOR_DOF = 2
 REGION_WORDS = ("a regions CSV (columns date or year, latitude, and leading_polarity or flux_mx)")
