@@ -14,7 +14,11 @@ among the forks, and the oracle's median |relative error| of the amplitude (its 
 truth), with its 68 % coverage. Compare with ``bench/hindcast.py``'s table by lead.
 
     python bench/predictability.py [--preset hard] [--seeds 101 102 ...] [--cycles 5]
-                                   [--leads 4 3.5 3 2 1] [--forks 24] [--jobs 2]
+                                   [--leads 4 3.5 3 2 1] [--forks 24] [--jobs 2] [--blind-flow]
+
+``--blind-flow`` takes from the oracle one thing the forecast cannot know either: each cycle's own
+meridional flow (the hard preset varies it with the cycle's strength and at random); its forks run
+the world's base flow.
 """
 
 from __future__ import annotations
@@ -45,7 +49,7 @@ def _law(settings, dipole: float) -> float:
 
 def world_forks(args: tuple) -> list[dict]:
     """Run one world as the generator does; at each lead before each minimum, fork the emergence."""
-    preset, seed, cycles, grid, leads, forks = args
+    preset, seed, cycles, grid, leads, forks, blind_flow = args
     s = world_settings(preset, seed, cycles, grid)
     with tempfile.TemporaryDirectory() as tmp:
         run = _Run(Path(tmp), s, force=True)  # its random streams, exactly as generate() draws them
@@ -73,8 +77,10 @@ def world_forks(args: tuple) -> list[dict]:
                 continue
             run._step_to(at)
             dipoles = []
+            # the oracle knows this cycle's own flow; a blind one runs the world's base flow instead
+            fork_model = _model(s, axisymmetric=False) if blind_flow else run.stepper.model
             for k in range(forks):
-                fork = run.stepper.model.stepper(run.stepper.field(), s.step_days)
+                fork = fork_model.stepper(run.stepper.field(), s.step_days)
                 fork.steps_done = run.stepper.steps_done
                 rng = np.random.default_rng([seed, 1000 + n, k, int(round(lead * 100))])
                 rng_extra = np.random.default_rng([seed, 2000 + n, k, int(round(lead * 100))])
@@ -115,14 +121,17 @@ def main() -> int:
     parser.add_argument("--leads", type=float, nargs="+", default=[4.0, 3.5, 3.0, 2.0, 1.0])
     parser.add_argument("--forks", type=int, default=24)
     parser.add_argument("--jobs", type=int, default=2)
+    parser.add_argument("--blind-flow", action="store_true",
+                        help="the forks run the world's base flow, not the declining cycle's own")
     args = parser.parse_args()
     preset = None if args.preset in ("default", "none") else args.preset
     began = time.perf_counter()
-    work = [(preset, s, args.cycles, args.grid, args.leads, args.forks) for s in args.seeds]
+    work = [(preset, s, args.cycles, args.grid, args.leads, args.forks, args.blind_flow) for s in args.seeds]
     with ProcessPoolExecutor(max_workers=args.jobs) as pool:
         rows = [r for part in pool.map(world_forks, work) for r in part]
     print(f"worlds: {len(args.seeds)} x {args.cycles} cycles, preset {args.preset}, {args.grid} grid; "
-          f"{args.forks} forks of the emergence from each forecast date")
+          f"{args.forks} forks of the emergence from each forecast date"
+          + ("; the forks run the world's base flow (blind to each cycle's own)" if args.blind_flow else ""))
     print(f"{'lead (yr)':>9} {'n':>3} {'sd ln|D| forks':>15} {'mean bias':>10} {'oracle med|rel err|':>20} "
           f"{'68 % coverage':>14}")
     for lead in sorted(args.leads, reverse=True):
