@@ -56,6 +56,7 @@ import numpy as np
 from .budget import spread_budget
 from .errors import PolarfluxError, SettingsError
 from .precursor import DEFAULT_LAW, LAWS, PrecursorFit, Prediction, ProportionalFit, fit_precursor
+from .precursor import sample_summary as _summary
 from .projection import _latest_profile, project_to_minimum, record_prior, shrink_to_prior
 
 __all__ = [
@@ -151,12 +152,6 @@ def rise_time_years(amplitude) -> np.ndarray:
     grid = np.linspace(max(5.0, amplitude.min()), max(amplitude.max(), 10.0), 40)
     rises = np.array([months[np.argmax(cycle_shape(months, _shape_for_amplitude(a)))] / 12.0 for a in grid])
     return np.interp(np.clip(amplitude, grid[0], grid[-1]), grid, rises)
-
-
-def _summary(values: np.ndarray) -> dict:
-    q = np.percentile(values, [2.5, 16.0, 50.0, 84.0, 97.5])
-    return {"median": float(q[2]), "low68": float(q[1]), "high68": float(q[3]),
-            "low95": float(q[0]), "high95": float(q[4])}
 
 
 def forecast_next_cycle(fit: PrecursorFit, projected_proxy, minimum_times, seed: int = 1,

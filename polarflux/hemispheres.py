@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 
 from .precursor import fit_precursor
+from .precursor import sample_summary as _summary
 
 __all__ = ["hemispheric_pairs", "hemispheric_forecast"]
 
@@ -71,7 +72,6 @@ def hemispheric_forecast(pairs: list[dict], projected: dict, law: str, seed: int
     hemisphere's amplitude summary (median, 68 and 95 % ranges), or ``why`` it was not made.
     """
     from .errors import SettingsError
-    from .forecast import _summary
 
     hemispheres_in = {p["hemisphere"] for p in pairs}
     if len(pairs) < 3 or hemispheres_in != set(HEMISPHERES):

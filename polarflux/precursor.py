@@ -40,6 +40,13 @@ DEFAULT_LAW = "linear"
 _P68, _P95 = 0.84134474606854293, 0.975
 
 
+def sample_summary(values) -> dict:
+    """Median and the central 68 % and 95 % ranges of Monte Carlo samples (percentiles)."""
+    q = np.percentile(np.asarray(values, dtype=np.float64), [2.5, 16.0, 50.0, 84.0, 97.5])
+    return {"median": float(q[2]), "low68": float(q[1]), "high68": float(q[3]),
+            "low95": float(q[0]), "high95": float(q[4])}
+
+
 @dataclass(frozen=True)
 class Prediction:
     """A predicted amplitude: the central value and prediction intervals (68 % and 95 %)."""
