@@ -122,3 +122,24 @@ def test_readme_test_command_is_what_ci_runs():
     assert test_lines, "README gives no test command"
     command = test_lines[0].split("&&")[-1].strip()
     assert command in ci
+
+
+def test_readme_command_summary_lists_every_option_and_no_other():
+    # the README's summary block against the parser itself: an option added without the README, or
+    # left in the README after it went, fails here
+    from polarflux.cli._parser import build_parser
+
+    text = (ROOT / "README.md").read_text()
+    block = text[text.index("polarflux measure INPUT"):]
+    block = block[:block.index("```")]
+    listed, current = {}, None
+    for line in block.splitlines():
+        start = re.match(r"polarflux (\w+)", line)
+        if start:
+            current = start.group(1)
+        if current:
+            listed.setdefault(current, set()).update(re.findall(r"--[a-z][a-z0-9-]*", line))
+    commands = next(a for a in build_parser()._actions if a.__class__.__name__ == "_SubParsersAction").choices
+    for name, sub in commands.items():
+        options = {o for a in sub._actions for o in a.option_strings if o.startswith("--") and o != "--help"}
+        assert listed.get(name) == options, (name, sorted(options ^ listed.get(name, set())))
