@@ -8,7 +8,7 @@ never from the truth; each forecast sees only what existed on its date). The out
 come from the world's truth.json. Prints the table by lead, one summary line, and the
 wall time with the number of cores.
 
-    python bench/hindcast.py [--preset hard] [--seeds 5] [--cycles 5] [--every 6M] [--jobs 2]
+    python bench/hindcast.py [--preset hard] [--seeds 5] [--cycles 5] [--every 6M] [--jobs 2] [--regions]
                              [--members 100] [--grid coarse|low] [--dask local|ADDRESS] [--out PREFIX]
                              [--law linear proportional] [--worlds DIR]
 
@@ -70,6 +70,28 @@ def make_world(args: tuple) -> tuple[str, float]:
     return folder, time.perf_counter() - start
 
 
+def world_regions(folder: str):
+    """A world's regions.csv as the forecast reads it (worlds made before it had a date column: from its years)."""
+    import csv
+    import json
+
+    from polarflux.regions import Regions, read_regions
+    from polarflux.timeseries import to_decimal_year
+
+    path = os.path.join(folder, "regions.csv")
+    with open(path, encoding="utf-8") as handle:
+        header = handle.readline()
+    if "date" in header.split(","):
+        return read_regions(path)
+    with open(os.path.join(folder, "truth.json"), encoding="utf-8") as handle:
+        start = json.load(handle)["start"]
+    start_year = float(to_decimal_year(np.array([np.datetime64(start[:19])]))[0][0])
+    with open(path, newline="", encoding="utf-8") as handle:
+        rows = list(csv.DictReader(handle))
+    return Regions(np.array([start_year + float(r["years"]) for r in rows]),
+                   np.array([float(r["latitude"]) for r in rows]), np.sign([float(r["flux_mx"]) for r in rows]))
+
+
 def dates_around_minima(record, t, v, every: str, before: float = 4.0, after: float = 2.0) -> np.ndarray:
     """Grid dates (where three cycles can calibrate) within [minimum - before, minimum + after] of a minimum
     of the whole sunspot series."""
@@ -97,6 +119,8 @@ def main() -> None:
     parser.add_argument("--out", default=None, help="write the CSV tables and figures with this prefix")
     parser.add_argument("--law", nargs="+", default=["linear"], choices=("linear", "proportional"),
                         help="the precursor law(s): each is scored on the same worlds and dates")
+    parser.add_argument("--regions", action="store_true",
+                        help="each forecast also sees the world's regions.csv (forecast --regions)")
     parser.add_argument("--worlds", default=None,
                         help="keep the worlds in this folder and reuse those already made there")
     args = parser.parse_args()
@@ -122,8 +146,9 @@ def main() -> None:
             dates = dates_around_minima(record, t, v, args.every)
             for law in args.law:
                 start = time.perf_counter()
+                extra = {"regions": world_regions(folder)} if args.regions else {}
                 result = hindcast(record, (t, v), dates, members=args.members, seed=seed, jobs=args.jobs,
-                                  dask=args.dask, truth=os.path.join(folder, "truth.json"), law=law)
+                                  dask=args.dask, truth=os.path.join(folder, "truth.json"), law=law, **extra)
                 every = summarise(result)
                 print(f"  seed {seed}, {law} law: {every['forecasts']} forecasts ({every['failures']} failed, "
                       f"{every['scored']} scored) in {time.perf_counter() - start:.0f} s")

@@ -449,7 +449,7 @@ def hindcast(record, sunspots, dates=None, *, every="3M", start=None, end=None, 
         ``progress(done, total)`` after each finished forecast.
     **forecast_options
         Passed to :func:`polarflux.forecast.forecast_from_record` (``proxy``, ``viewing``,
-        ``bases``, ``calibration``).
+        ``bases``, ``calibration``, ``regions``).
 
     Returns
     -------

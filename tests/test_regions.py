@@ -148,3 +148,33 @@ def test_scenario_minimum_confirmed_by_regions_before_the_series(hindcast_scenar
     assert "new-cycle regions" in out
     saved = json.loads((tmp_path / "record_forecast.json").read_text())
     assert saved["phase"]["minimum_from_regions"]["new_regions"] >= 5
+
+
+def test_hindcast_passes_the_regions_to_each_forecast(hindcast_scenario, tmp_path):
+    # hindcast dates about a year after cycle 4's minimum: with --regions each forecast's minimum is the
+    # one the regions date as on its date (see the test above), without it the cycle-length prior's
+    import csv
+
+    from polarflux.cli import main
+    from polarflux.cutoff import cut_sunspots
+
+    folder, truth, record, t, v = hindcast_scenario
+    minimum = 2051.0 + truth["cycles"][3]["minimum_years"]
+    first, last = (str(from_decimal_year(np.array([minimum + x]), True)[0])[:10] for x in (1.0, 1.3))
+    path = tmp_path / "record.nc"
+    pf.write_record(record, path)
+    rows = {}
+    for name, extra in (("with", ["--regions", str(folder / "regions.csv")]), ("without", [])):
+        assert main(["hindcast", str(path), "--sunspots", str(folder / "sunspots.csv"), "--from", first, "--to", last,
+                     "--members", "40", "--jobs", "1", "--out", str(tmp_path / name), *extra]) == 0
+        with open(tmp_path / f"{name}_hindcast.csv", newline="") as handle:
+            rows[name] = [r for r in csv.DictReader(handle) if r["status"] == "ok"]
+    assert rows["with"] and len(rows["with"]) == len(rows["without"])
+    regions = read_regions(folder / "regions.csv")
+    for with_row, without_row in zip(rows["with"], rows["without"], strict=True):
+        date = float(with_row["date"])
+        seen = cut_sunspots(t, v, date)  # the series as the forecast saw it
+        expected = minimum_from_regions(regions, pf.find_cycle_extrema(*seen).minima.times, date)
+        assert expected is not None
+        assert abs(float(with_row["forecast_minimum"]) - expected.time) < 0.1
+        assert abs(float(without_row["forecast_minimum"]) - expected.time) > 0.1

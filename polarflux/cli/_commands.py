@@ -235,6 +235,11 @@ def hindcast(args, parser) -> int:
     record = read_record(record_path)
     sunspots = read_sunspots(args.sunspots)
     truth = args.truth  # a path: read (and refused by name) before the forecasts run
+    options = {"bases": bases(record_path)}
+    if args.regions:
+        from ..regions import read_regions
+
+        options["regions"] = read_regions(args.regions)
     # the tables and the summary figures, checked before the long run (the per-cycle figures are
     # checked again, with these, before anything is written)
     outputs_for(prefix, {k: f"_hindcast{k}" for k in (".csv", "_leads.csv", "_pit.png", "_error_lead.png")},
@@ -246,8 +251,7 @@ def hindcast(args, parser) -> int:
         progress.step(count=done - progress.done)
 
     result = hc.hindcast(record, sunspots, every=args.every, start=start, end=end, jobs=args.jobs, dask=args.dask,
-                         members=args.members, seed=args.seed, truth=truth, progress=report,
-                         bases=bases(record_path))
+                         members=args.members, seed=args.seed, truth=truth, progress=report, **options)
     progress.close()
     written = hc.write_hindcast(result, prefix, force=args.force, caption=f"polarflux hindcast: {record_path}")
     print(hc.format_lead_table(hc.lead_table(result)))

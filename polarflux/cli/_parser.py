@@ -120,6 +120,9 @@ def build_parser() -> argparse.ArgumentParser:
     hindcast.add_argument("--to", dest="end", metavar="DATE", help="last forecast date (YYYY-MM-DD)")
     hindcast.add_argument("--truth", metavar="truth.json",
                           help="an invented scenario's truth: outcomes from it instead of the sunspot series")
+    hindcast.add_argument("--regions", metavar="FILE.csv",
+                          help="active regions, as for 'polarflux forecast --regions': each forecast sees those "
+                          "emerged by its date")
     hindcast.add_argument("--members", type=int, default=200, metavar="N",
                           help="Monte Carlo members of each forecast (default: 200)")
     hindcast.add_argument("--seed", type=int, default=0, help="random seed (default: 0)")
