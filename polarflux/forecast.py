@@ -364,6 +364,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
     late_fit = None
     shrink = None
     by_regions = None
+    regions_looked = False  # whether the regions were asked for a minimum (only while one is coming)
     peak = _passed_peak(events, minima[-1], t_ssn, v_ssn)
     rising = _rising_cycle(events, minima[-1], as_of_year, proxy, peak)
     latest = None if rising is not None else _latest_profile(past, merged, as_of_ns, bases)
@@ -391,6 +392,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
             from .regions import WINDOW_YEARS, minimum_from_regions
 
             by_regions = minimum_from_regions(regions, minima, as_of_year)
+            regions_looked = True
             if by_regions is not None:  # the new cycle's regions confirm a minimum the series cannot yet
                 cycle_length = (by_regions.time - minima[-1], by_regions.uncertainty_years)
                 earliest = minima[-1] + 1.0
@@ -440,9 +442,12 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         shrink["lead_years"] = lead
         # each cap anchored to its own smoothed field, then changed member by member as the proxy was
         changed = np.divide(projection[proxy], anchored, out=np.ones(members), where=anchored > 0)
+        proxy_ratio = measured[proxy] / model_now[proxy] if model_now[proxy] > 0 and measured[proxy] > 0 else 1.0
         for h in ("north", "south"):
             model_h = abs(start[f"{h}_mean_field"])
-            projection[h] = projection[h] * (measured[h] / model_h if model_h > 0 else 1.0) * changed
+            # near a cap's reversal its field is not known better than its error: the proxy's ratio then
+            ratio = measured[h] / model_h if model_h > 0 and measured[h] > 2.0 * measured["errors"][h] else proxy_ratio
+            projection[h] = projection[h] * ratio * changed
         drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
                        [projection["diffusivity"], projection["flow_speed"], 1.0 / projection["decay_time"]]),
                    "date of minimum": projection["minimum"],
@@ -498,7 +503,7 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         # a minimum the projection dates before the forecast date is past, only not yet confirmed by the series
         which = ("the coming minimum" if start > as_of_year else
                  f"the minimum of about {format_date(start)}, not yet confirmed by the sunspot series")
-        if regions is not None and by_regions is None:
+        if regions_looked and by_regions is None:
             which += "; the new cycle's regions do not yet outnumber the old's"
         if by_regions is not None:
             which = (f"the minimum of about {format_date(by_regions.time)} (+/- {by_regions.uncertainty_years:.1f} yr), "

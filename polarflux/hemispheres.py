@@ -37,8 +37,9 @@ def hemispheric_pairs(pairs: list[dict], events: dict, times, north, south) -> l
     """Two calibration pairs per cycle of ``pairs`` (from :func:`polarflux.forecast.calibration_from_events`).
 
     Each cycle's hemispheric amplitude is the highest smoothed value of that hemisphere's
-    series from the cycle's minimum to the next minimum (or to the end of the series, when
-    the total has passed its maximum); the proxy is the cap's own smoothed mean field there.
+    series from the cycle's minimum to the next minimum (or, for the last cycle, to the end of
+    the series, once that hemisphere's highest value is two years behind it); the proxy is the
+    cap's own smoothed mean field there.
     Cycles whose hemispheric series has no smoothed value in that span are left out.
     """
     t = np.asarray(times, dtype=np.float64)
@@ -59,6 +60,10 @@ def hemispheric_pairs(pairs: list[dict], events: dict, times, north, south) -> l
             field = abs(at[h])
             if not np.isfinite(values).any() or not (np.isfinite(field) and field > 0):
                 continue
+            if not later:  # the last cycle: its hemisphere's maximum must be two years behind the series' end
+                good = np.flatnonzero(np.isfinite(values))
+                if t[span][good[-1]] - t[span][good[np.argmax(values[good])]] < 2.0:
+                    continue
             out.append({"cycle": f"{pair['cycle']}{h[0].upper()}", "hemisphere": h, "minimum": at["time"],
                         "proxy": float(field), "next_amplitude": float(np.nanmax(values)), "source": "record"})
     return out

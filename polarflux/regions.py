@@ -4,10 +4,11 @@ The smoothed sunspot series confirms a minimum only about a year after it (half 
 window, then a sustained rise: :data:`polarflux.events.CONFIRM_YEARS`). Where the user keeps a
 list of active regions with their latitudes and leading polarities, the new cycle shows itself
 sooner: its regions emerge at high latitude with the leading polarity reversed (Hale's law), and
-the minimum is about when they come to outnumber the old cycle's (Harvey & White 1999, ApJ 515,
-812; Hathaway 2015, Living Rev. Sol. Phys. 12, 4: from memory). This module counts both kinds in
+the minimum is about when they come to outnumber the old cycle's (Harvey & White 1999, J. Geophys.
+Res. 104, 19759; Hathaway 2015, Living Rev. Sol. Phys. 12, 4: from memory). This module counts both kinds in
 a sliding half-year window and dates the minimum at the centre of the first window in which the
-new cycle's regions outnumber the old's, when the next windows up to the forecast date agree.
+new cycle's regions outnumber the old's, once the two windows after it (a month apart, both ended by
+the forecast date) agree.
 
 Regions file (CSV): a time column ``date`` (YYYY-MM-DD) or ``year`` (decimal year), ``latitude``
 (degrees, north positive), and the leading polarity as ``leading_polarity`` (+1 or -1) or as the
@@ -17,6 +18,7 @@ sign of ``flux_mx`` (the leading spot's signed flux). Other columns are ignored.
 from __future__ import annotations
 
 import csv
+import math
 import os
 from dataclasses import dataclass
 
@@ -82,15 +84,18 @@ def read_regions(path: str | os.PathLike) -> Regions:
                         when = np.datetime64((row["date"] or "").strip()[:10], "D")
                         times.append(float(to_decimal_year(np.array([when]))[0][0]))
                     else:
-                        times.append(float(row["year"]))
+                        times.append(float(row.get("year") or "nan"))
                     lats.append(float(row["latitude"]))
-                    sign = float(np.sign(float(row[polarity])))
-                except (TypeError, ValueError):
+                    value = float(row[polarity])
+                except (TypeError, ValueError, KeyError):
                     raise PolarfluxError(f"{source}: line {line}: date or year, latitude and {polarity} must be "
                                          "a date and numbers") from None
-                if sign == 0 or not np.isfinite(lats[-1]) or abs(lats[-1]) > 90:
-                    raise PolarfluxError(f"{source}: line {line}: {polarity} must be non-zero and latitude "
-                                         "within +/-90 degrees")
+                if not np.isfinite(times[-1]):
+                    raise PolarfluxError(f"{source}: line {line}: no date or year")
+                if not np.isfinite(value) or value == 0 or not np.isfinite(lats[-1]) or abs(lats[-1]) > 90:
+                    raise PolarfluxError(f"{source}: line {line}: {polarity} must be a non-zero number and "
+                                         "latitude within +/-90 degrees")
+                sign = float(np.sign(value))
                 leading.append(sign)
     except OSError as exc:
         raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
@@ -166,8 +171,8 @@ def minimum_from_regions(regions: Regions, minima, as_of: float) -> RegionMinimu
     latitude cut, the window, how the cycles overlap), the record's own minima say by how much. The
     minimum is the crossing less the offsets' mean. Its uncertainty pools the offsets' spread with
     :data:`PRIOR_SD_YEARS` (weighted as :data:`PRIOR_DOF` minima), so one or two earlier minima that
-    happen to agree do not make it look exact; without an earlier minimum the crossing is taken
-    unshifted with the prior's uncertainty.
+    happen to agree do not make it look exact, times sqrt(1 + 1/n) for the mean's own error (n
+    offsets); without an earlier minimum the crossing is taken unshifted with the prior's uncertainty.
     """
     minima = sorted(float(m) for m in minima if m <= as_of)
     if not minima:
@@ -183,6 +188,8 @@ def minimum_from_regions(regions: Regions, minima, as_of: float) -> RegionMinimu
     shift = float(np.mean(offsets)) if offsets else 0.0
     squares = float(np.sum((np.asarray(offsets) - shift) ** 2)) if offsets else 0.0
     spread = np.sqrt((squares + PRIOR_DOF * PRIOR_SD_YEARS**2) / (max(len(offsets) - 1, 0) + PRIOR_DOF))
+    if offsets:  # the mean offset is itself uncertain: a prediction's sqrt(1 + 1/n)
+        spread *= math.sqrt(1.0 + 1.0 / len(offsets))
     return RegionMinimum(time=found.crossing - shift, uncertainty_years=float(spread),
                          crossing=found.crossing, confirmed=found.confirmed, new_regions=found.new_regions,
                          old_regions=found.old_regions, old_north_leading=found.old_north_leading,

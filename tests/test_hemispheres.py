@@ -141,3 +141,22 @@ def test_forecast_command_prints_and_saves_the_hemispheres(world, tmp_path, caps
         f"{y:.4f},{v:.1f}" for y, v in zip(series.times, series.total, strict=True)) + "\n")
     assert main(["forecast", str(path), "--sunspots", str(total_only), "--members", "60", "--force"]) == 0
     assert "hemispheres" not in capsys.readouterr().out
+
+
+def test_each_cap_is_projected_in_the_records_own_terms(world):
+    # half a year before cycle 4's minimum little changes: each cap's projected field at the minimum
+    # must be near what the record itself then measured at that minimum (its smoothed, viewing-
+    # corrected cap field), sign and all; a cap left in the model's units or swapped with the other
+    # would not be
+    from polarflux.calibration import merge_instruments
+    from polarflux.events import record_events
+
+    folder, truth, record, series = world
+    events = record_events(merge_instruments(record), series.times, series.total)
+    minimum = 2051.0 + truth["cycles"][3]["minimum_years"]
+    at = min(events["at_minima"], key=lambda a: abs(a["time"] - minimum))
+    result = forecast_from_record(record, series.times, series.total, as_of=at["time"] - 0.5, members=200, seed=2,
+                                  hemispheric=(series.north, series.south))
+    for h in ("north", "south"):
+        projected = result["projection"][f"{h}_at_minimum"]["median"]
+        assert projected == pytest.approx(at[h], rel=0.2), (h, projected, at[h])

@@ -3,14 +3,15 @@
 Sources:
   * closed form: two linear emergence rates (the old cycle's falling, the new one's rising) cross at
     a known date;
-  * Hale's law and the new cycle's high latitudes (common practice; Harvey & White 1999, ApJ 515,
-    812, from memory);
+  * Hale's law and the new cycle's high latitudes (common practice; Harvey & White 1999, J. Geophys.
+    Res. 104, 19759, from memory);
   * the invented scenario's truth (truth.json: its cycles' minima) and its own regions.csv.
 """
 
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -97,8 +98,13 @@ def test_earlier_minima_calibrate_the_offset_between_crossing_and_minimum():
     assert found is not None and len(found.offsets) == 2
     np.testing.assert_allclose(found.offsets, 0.3, atol=1.0 / 12.0 + 1e-9)
     assert found.time == pytest.approx(minima[-1], abs=1.0 / 12.0 + 1e-9)
-    # two agreeing offsets do not make it exact: the prior's 0.4 yr keeps the uncertainty up
-    assert 0.25 < found.uncertainty_years < 0.4
+    # two agreeing offsets do not make it exact: the prior's 0.4 yr (as two minima) keeps the uncertainty
+    # up, the pooled variance of a normal sample with a scaled inverse-chi2 prior, times sqrt(1 + 1/n)
+    # for the mean's own error (Gelman et al. 2013, Bayesian Data Analysis, 3rd ed., sect. 3.3)
+    squares = float(np.sum((np.array(found.offsets) - np.mean(found.offsets)) ** 2))
+    pooled = math.sqrt((squares + 2 * 0.4**2) / (1 + 2))
+    assert found.uncertainty_years == pytest.approx(pooled * math.sqrt(1.5))
+    assert found.uncertainty_years > 0.35
 
 
 def test_read_regions_by_date_or_year_and_by_flux_sign_or_polarity(tmp_path):
@@ -113,6 +119,12 @@ def test_read_regions_by_date_or_year_and_by_flux_sign_or_polarity(tmp_path):
     bad.write_text("year,latitude,leading_polarity\n2090.1,25,1\n2090.2,north,-1\n")
     with pytest.raises(PolarfluxError, match=r"bad\.csv: line 3"):
         read_regions(bad)
+    for name, text in (("nodate.csv", "date,latitude,flux_mx\n2090-03-01,25.0,-3e21\n,10.0,2e21\n"),
+                       ("nan.csv", "year,latitude,leading_polarity\n2090.1,25,1\n2090.2,25,nan\n"),
+                       ("nanyear.csv", "year,latitude,leading_polarity\n2090.1,25,1\nnan,25,1\n")):
+        (tmp_path / name).write_text(text)
+        with pytest.raises(PolarfluxError, match=name.replace(".", r"\.") + ": line 3"):
+            read_regions(tmp_path / name)
     wrong = tmp_path / "ssn.csv"
     wrong.write_text("date,sunspot_number\n2090-01-15,30\n")
     with pytest.raises(PolarfluxError, match=r"ssn\.csv: needs columns date \(or year\), latitude"):
@@ -178,3 +190,16 @@ def test_hindcast_passes_the_regions_to_each_forecast(hindcast_scenario, tmp_pat
         assert expected is not None
         assert abs(float(with_row["forecast_minimum"]) - expected.time) < 0.1
         assert abs(float(without_row["forecast_minimum"]) - expected.time) > 0.1
+
+
+def test_regions_that_confirm_nothing_leave_the_forecast_as_it_was(hindcast_scenario):
+    folder, truth, record, t, v = hindcast_scenario
+    minimum = 2051.0 + truth["cycles"][3]["minimum_years"]
+    early = read_regions(folder / "regions.csv").until(minimum - 3.0)  # nothing of the new cycle yet
+    as_of = minimum + 1.0
+    plain = forecast_from_record(record, t, v, as_of=as_of, members=100, seed=5)
+    quiet = forecast_from_record(record, t, v, as_of=as_of, members=100, seed=5, regions=early)
+    assert quiet["phase"]["minimum_from_regions"] is None
+    assert quiet["forecast"]["amplitude"] == plain["forecast"]["amplitude"]
+    assert quiet["projection"]["minimum_time"] == plain["projection"]["minimum_time"]
+    assert "do not yet outnumber" in quiet["phase"]["text"] and "outnumber" not in plain["phase"]["text"]
