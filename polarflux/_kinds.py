@@ -11,7 +11,7 @@ import os
 import re
 from pathlib import Path
 
-__all__ = ["file_kind", "KIND_WORDS", "check_input_file"]
+__all__ = ["file_kind", "KIND_WORDS", "check_input_file", "read_csv_table"]
 
 #: How each kind is named in messages.
 KIND_WORDS = {
@@ -109,3 +109,29 @@ def check_input_file(path: str | os.PathLike, expected: str, accept: tuple[str, 
     if kind in accept:
         return kind
     raise PolarfluxError(f"{path}: {KIND_WORDS[kind]}; expected {expected}")
+
+
+def read_csv_table(path: str | os.PathLike, expected: str,
+                   accept: tuple[str, ...] = ("csv", "text")) -> tuple[str, list[str], list[tuple[int, dict]]]:
+    """A user's CSV: its name, its column names (stripped, lower case) and its rows with their line numbers.
+
+    The file is checked with :func:`check_input_file` first; a file that cannot be opened or is
+    not text is refused in one line naming it and ``expected``.
+    """
+    import csv
+
+    from .errors import PolarfluxError
+
+    source = os.fspath(path)
+    check_input_file(source, expected, accept=accept)
+    try:
+        with open(source, newline="", encoding="utf-8-sig") as handle:
+            reader = csv.DictReader(handle)
+            fields = [f.strip().lower() for f in reader.fieldnames or []]
+            reader.fieldnames = fields
+            rows = list(enumerate(reader, start=2))
+    except OSError as exc:
+        raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise PolarfluxError(f"{source}: not a text file; expected {expected}") from None
+    return source, fields, rows

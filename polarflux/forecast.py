@@ -47,7 +47,6 @@ rules, not this tool.
 
 from __future__ import annotations
 
-import csv
 import math
 import os
 
@@ -109,32 +108,22 @@ def calibration_from_events(events: dict, proxy: str = "axial_dipole") -> list[d
 
 def read_calibration(path: str | os.PathLike) -> list[dict]:
     """Read calibration pairs from CSV with columns ``cycle, proxy, next_amplitude, source``."""
-    from ._kinds import check_input_file
+    from ._kinds import read_csv_table
 
-    source = os.fspath(path)
     expected = "a calibration CSV (columns cycle, proxy, next_amplitude, source)"
-    check_input_file(source, expected, accept=("csv", "text"))
-    try:
-        with open(source, newline="", encoding="utf-8-sig") as handle:
-            reader = csv.DictReader(handle)
-            fields = [f.strip().lower() for f in reader.fieldnames or []]
-            reader.fieldnames = fields
-            missing = [c for c in ("cycle", "proxy", "next_amplitude") if c not in fields]
-            if missing:
-                raise PolarfluxError(f"{source}: missing column(s) {', '.join(missing)} "
-                                     "(expected cycle, proxy, next_amplitude, source)")
-            pairs = []
-            for line, row in enumerate(reader, start=2):
-                try:
-                    pairs.append({"cycle": row["cycle"].strip(), "proxy": float(row["proxy"]),
-                                  "next_amplitude": float(row["next_amplitude"]),
-                                  "source": (row.get("source") or "").strip()})
-                except (TypeError, ValueError):
-                    raise PolarfluxError(f"{source}: line {line}: proxy and next_amplitude must be numbers") from None
-    except OSError as exc:
-        raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
-    except UnicodeDecodeError:
-        raise PolarfluxError(f"{source}: not a text file; expected {expected}") from None
+    source, fields, rows = read_csv_table(path, expected)
+    missing = [c for c in ("cycle", "proxy", "next_amplitude") if c not in fields]
+    if missing:
+        raise PolarfluxError(f"{source}: missing column(s) {', '.join(missing)} "
+                             "(expected cycle, proxy, next_amplitude, source)")
+    pairs = []
+    for line, row in rows:
+        try:
+            pairs.append({"cycle": row["cycle"].strip(), "proxy": float(row["proxy"]),
+                          "next_amplitude": float(row["next_amplitude"]),
+                          "source": (row.get("source") or "").strip()})
+        except (TypeError, ValueError):
+            raise PolarfluxError(f"{source}: line {line}: proxy and next_amplitude must be numbers") from None
     if not pairs:
         raise PolarfluxError(f"{source}: holds no calibration pairs; expected {expected}")
     return pairs
@@ -289,7 +278,8 @@ def public_result(result: dict) -> dict:
 
 def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "axial_dipole",
                          calibration: list[dict] | None = None, as_of=None, members: int = 1000, seed: int = 0,
-                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW, hemispheric=None, regions=None) -> dict:
+                         viewing: str = "b0", bases=("",), law: str = DEFAULT_LAW, hemispheric=None,
+                         regions=None) -> dict:
     """The whole forecast from a measured record and a sunspot series.
 
     Parameters
@@ -404,8 +394,8 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         start = projection["now"]
         model_now = {"axial_dipole": abs(start["axial_dipole"]),
                      "mean_field": 0.5 * (abs(start["north_mean_field"]) + abs(start["south_mean_field"]))}
-        if model_now[proxy] > 0 and measured[proxy] > 0:
-            projection[proxy] = np.abs(projection[proxy]) * (measured[proxy] / model_now[proxy])
+        anchor_ratio = measured[proxy] / model_now[proxy] if model_now[proxy] > 0 and measured[proxy] > 0 else 1.0
+        projection[proxy] = np.abs(projection[proxy]) * anchor_ratio
         anchored = np.abs(projection[proxy]).copy()  # what the draws, the misfit and the prior change below
         # the anchor is only as good as the fill of the caps' unseen part and the smoothing of the last
         # year's values: each member's scale is drawn from both
@@ -442,11 +432,10 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         shrink["lead_years"] = lead
         # each cap anchored to its own smoothed field, then changed member by member as the proxy was
         changed = np.divide(projection[proxy], anchored, out=np.ones(members), where=anchored > 0)
-        proxy_ratio = measured[proxy] / model_now[proxy] if model_now[proxy] > 0 and measured[proxy] > 0 else 1.0
         for h in ("north", "south"):
             model_h = abs(start[f"{h}_mean_field"])
             # near a cap's reversal its field is not known better than its error: the proxy's ratio then
-            ratio = measured[h] / model_h if model_h > 0 and measured[h] > 2.0 * measured["errors"][h] else proxy_ratio
+            ratio = measured[h] / model_h if model_h > 0 and measured[h] > 2.0 * measured["errors"][h] else anchor_ratio
             projection[h] = projection[h] * ratio * changed
         drivers = {"projection physics (diffusivity, flow, decay)": np.column_stack(
                        [projection["diffusivity"], projection["flow_speed"], 1.0 / projection["decay_time"]]),
@@ -500,15 +489,17 @@ def forecast_from_record(record, sunspot_times, sunspot_values, proxy: str = "ax
         why = (f"past its maximum of about {format_date(peak)}" if peak is not None else
                "too young: the smoothed polar field at its minimum is not measured yet")
         start = float(result["minimum_time"]["median"])
-        # a minimum the projection dates before the forecast date is past, only not yet confirmed by the series
-        which = ("the coming minimum" if start > as_of_year else
-                 f"the minimum of about {format_date(start)}, not yet confirmed by the sunspot series")
-        if regions_looked and by_regions is None:
-            which += "; the new cycle's regions do not yet outnumber the old's"
         if by_regions is not None:
             which = (f"the minimum of about {format_date(by_regions.time)} (+/- {by_regions.uncertainty_years:.1f} yr), "
                      f"confirmed by {by_regions.new_regions} new-cycle regions against {by_regions.old_regions} old "
-                     f"in the half-year to {format_date(by_regions.crossing + WINDOW_YEARS / 2.0)}, not yet by the sunspot series")
+                     f"in the half-year to {format_date(by_regions.crossing + WINDOW_YEARS / 2.0)}, "
+                     "not yet by the sunspot series")
+        else:
+            # a minimum the projection dates before the forecast date is past, only not yet confirmed by the series
+            which = ("the coming minimum" if start > as_of_year else
+                     f"the minimum of about {format_date(start)}, not yet confirmed by the sunspot series")
+            if regions_looked:
+                which += "; the new cycle's regions do not yet outnumber the old's"
         phase = {"phase": "declining" if peak is not None else "minimum",
                  "cycle_start": start,
                  "minimum_from_regions": None if by_regions is None else {

@@ -256,8 +256,8 @@ def _anchor(merged, when) -> dict:
     """The proxies the projection is anchored to, as the calibration sees them, and their errors.
 
     The merged record's viewing-corrected polar mean field (mean of north and minus south), each
-    cap's (``north``, ``south``, magnitudes) and the axial dipole, each on the reference scale with its own factor (as the merge applied them),
-    smoothed as a straight line fitted to the last 13 rotations up to ``when`` and taken at
+    cap's (``north``, ``south``, magnitudes) and the axial dipole, each on the reference scale with
+    its own factor (as the merge applied them), smoothed as a straight line fitted to the last 13 rotations up to ``when`` and taken at
     ``when`` (a centred 13-rotation mean, as at the calibration's minima, needs half a year of
     later data). The errors are the line's standard error there.
     """

@@ -17,7 +17,6 @@ sign of ``flux_mx`` (the leading spot's signed flux). Other columns are ignored.
 
 from __future__ import annotations
 
-import csv
 import math
 import os
 from dataclasses import dataclass
@@ -63,44 +62,33 @@ class Regions:
 
 def read_regions(path: str | os.PathLike) -> Regions:
     """Read a regions CSV (see the module's description); errors name the file and the line."""
-    from ._kinds import check_input_file
+    from ._kinds import read_csv_table
     from .timeseries import to_decimal_year
 
-    source = os.fspath(path)
-    check_input_file(source, REGION_WORDS, accept=("csv", "text", "sunspots"))
+    source, fields, rows = read_csv_table(path, REGION_WORDS, accept=("csv", "text", "sunspots"))
+    polarity = "leading_polarity" if "leading_polarity" in fields else "flux_mx" if "flux_mx" in fields else None
+    if not ({"date", "year"} & set(fields)) or "latitude" not in fields or polarity is None:
+        raise PolarfluxError(f"{source}: needs columns date (or year), latitude, and leading_polarity (or "
+                             f"flux_mx); found {', '.join(repr(f) for f in fields) or 'none'}")
     times, lats, leading = [], [], []
-    try:
-        with open(source, newline="", encoding="utf-8-sig") as handle:
-            reader = csv.DictReader(handle)
-            fields = [f.strip().lower() for f in reader.fieldnames or []]
-            reader.fieldnames = fields
-            polarity = "leading_polarity" if "leading_polarity" in fields else "flux_mx" if "flux_mx" in fields else None
-            if not ({"date", "year"} & set(fields)) or "latitude" not in fields or polarity is None:
-                raise PolarfluxError(f"{source}: needs columns date (or year), latitude, and leading_polarity (or "
-                                     f"flux_mx); found {', '.join(repr(f) for f in fields) or 'none'}")
-            for line, row in enumerate(reader, start=2):
-                try:
-                    if "date" in fields and (row.get("date") or "").strip():
-                        when = np.datetime64((row["date"] or "").strip()[:10], "D")
-                        times.append(float(to_decimal_year(np.array([when]))[0][0]))
-                    else:
-                        times.append(float(row.get("year") or "nan"))
-                    lats.append(float(row["latitude"]))
-                    value = float(row[polarity])
-                except (TypeError, ValueError, KeyError):
-                    raise PolarfluxError(f"{source}: line {line}: date or year, latitude and {polarity} must be "
-                                         "a date and numbers") from None
-                if not np.isfinite(times[-1]):
-                    raise PolarfluxError(f"{source}: line {line}: no date or year")
-                if not np.isfinite(value) or value == 0 or not np.isfinite(lats[-1]) or abs(lats[-1]) > 90:
-                    raise PolarfluxError(f"{source}: line {line}: {polarity} must be a non-zero number and "
-                                         "latitude within +/-90 degrees")
-                sign = float(np.sign(value))
-                leading.append(sign)
-    except OSError as exc:
-        raise PolarfluxError(f"{source}: cannot open ({exc.strerror or exc})") from None
-    except UnicodeDecodeError:
-        raise PolarfluxError(f"{source}: not a text file; expected {REGION_WORDS}") from None
+    for line, row in rows:
+        try:
+            if "date" in fields and (row.get("date") or "").strip():
+                when = np.datetime64((row["date"] or "").strip()[:10], "D")
+                times.append(float(to_decimal_year(np.array([when]))[0][0]))
+            else:
+                times.append(float(row.get("year") or "nan"))
+            lats.append(float(row["latitude"]))
+            value = float(row[polarity])
+        except (TypeError, ValueError, KeyError):
+            raise PolarfluxError(f"{source}: line {line}: date or year, latitude and {polarity} must be "
+                                 "a date and numbers") from None
+        if not np.isfinite(times[-1]):
+            raise PolarfluxError(f"{source}: line {line}: no date or year")
+        if not np.isfinite(value) or value == 0 or not np.isfinite(lats[-1]) or abs(lats[-1]) > 90:
+            raise PolarfluxError(f"{source}: line {line}: {polarity} must be a non-zero number and "
+                                 "latitude within +/-90 degrees")
+        leading.append(float(np.sign(value)))
     if not times:
         raise PolarfluxError(f"{source}: holds no regions; expected {REGION_WORDS}")
     order = np.argsort(times, kind="stable")

@@ -42,6 +42,11 @@ class SunspotSeries(NamedTuple):
     north: np.ndarray | None
     south: np.ndarray | None
 
+    @property
+    def hemispheric(self) -> tuple[np.ndarray, np.ndarray] | None:
+        """(north, south) when the file gave both hemispheres' numbers, else None."""
+        return None if self.north is None or self.south is None else (self.north, self.south)
+
 
 def read_sunspots(path: str | os.PathLike) -> tuple[np.ndarray, np.ndarray]:
     """Read a sunspot-number series (decimal years, values); see :func:`read_sunspot_series`."""

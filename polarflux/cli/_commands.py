@@ -87,7 +87,6 @@ def forecast(args, parser) -> int:
     record = read_record(record_path)
     series = read_sunspot_series(args.sunspots)
     t, v = series.times, series.total
-    hemispheric = (series.north, series.south) if series.north is not None and series.south is not None else None
     if as_of is not None:
         import numpy as np
 
@@ -105,7 +104,7 @@ def forecast(args, parser) -> int:
                           args.force)
     result = forecast_from_record(record, t, v, proxy=args.proxy, calibration=calibration, as_of=as_of, law=args.law,
                                   members=args.members, seed=args.seed, bases=bases(record_path),
-                                  hemispheric=hemispheric, regions=regions)
+                                  hemispheric=series.hemispheric, regions=regions)
     print(forecast_text(result))
     write_forecast(result, t, v, outputs, args.force, caption=f"polarflux forecast: {record_path}")
     print("outputs: " + ", ".join(str(p) for p in outputs.values()))

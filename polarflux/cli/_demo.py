@@ -93,8 +93,7 @@ def _demo_analysis(ds, scenario: Path, folder: Path, truth: dict) -> Path:
     target = truth.get("next_cycle") or truth["cycles"][-1]
     as_of = start + target["start_years"] - 2.0  # forecast from the maps two years before the minimum
     series = read_sunspot_series(scenario / "sunspots.csv")
-    analysis = analyse(ds, (series.times, series.total), as_of=as_of, hemispheric=(series.north, series.south)
-                       if series.north is not None and series.south is not None else None)
+    analysis = analyse(ds, (series.times, series.total), as_of=as_of, hemispheric=series.hemispheric)
     found = analysis["events"]
     print(events_table(found))
     scales = {i["name"]: i["scale"] for i in truth["instruments"]}
